@@ -1,0 +1,1447 @@
+import { compileCircuit, type CircuitSpec, type CompiledCircuit } from './circuit.ts';
+import { SimulationError } from './errors.ts';
+import { expm } from './expm.ts';
+import { SignalResolver, type LinearRef, type SignalInfo } from './signals.ts';
+import { buildTopology, describeKey, type Topology } from './topology.ts';
+
+/** Direction of a guard crossing. */
+export type GuardDirection = 'rising' | 'falling' | 'either';
+
+/** A guard: fires when sum(gain * signal) - threshold crosses zero in the given direction. */
+export interface GuardSpec {
+  /** A single signal name (gain 1) ... */
+  readonly signal?: string;
+  /** ... or a linear combination of signals. */
+  readonly terms?: readonly { readonly signal: string; readonly gain: number }[];
+  /** Threshold in the unit of the combination (default 0). */
+  readonly threshold?: number;
+  readonly direction: GuardDirection;
+}
+
+/**
+ * What a controller may do at an event. Handles (numbers) are obtained once in `start` and
+ * used in `onEvent`; reading and setting through handles allocates nothing.
+ */
+export interface ControlContext {
+  /** Absolute time now, seconds. */
+  readonly timeS: number;
+  /** Index of the current time-base period (see {@link RunOptions.timeBaseS}). */
+  readonly cycle: number;
+  /** Offset within the current time-base period, seconds. */
+  readonly offsetS: number;
+  /** Length of the time-base period, seconds. */
+  readonly timeBaseS: number;
+  /** Handle of a named signal (throws on unknown names). */
+  signal(name: string): number;
+  /** Value of a signal now, in the topology in force just before the event. */
+  read(signal: number): number;
+  /** Handle of a gate signal. */
+  gate(name: string): number;
+  setGate(gate: number, on: boolean): void;
+  isGateOn(gate: number): boolean;
+  /** Schedules timer `tag` at cycle * timeBaseS + offsetS (drift free); replaces a pending timer with the same tag. */
+  at(tag: number, cycle: number, offsetS: number): void;
+  /** Schedules timer `tag` delayS seconds from now; replaces a pending timer with the same tag. */
+  after(tag: number, delayS: number): void;
+  cancel(tag: number): void;
+  /** Defines a guard (only in `start`); returns its handle. */
+  guard(spec: GuardSpec): number;
+  /** Arms a guard: when it fires, onEvent receives `tag`. */
+  arm(guard: number, tag: number): void;
+  disarm(guard: number): void;
+  /** Handle of a block's state (first state index) by block id. */
+  block(id: string): number;
+  /** Overwrites state `index` of a block (0 for ramps). */
+  setBlockState(block: number, value: number, index?: number): void;
+  /** Ends the run after this event with status "stopped". */
+  stop(message: string): void;
+}
+
+/** Control logic driven by events. */
+export interface Controller {
+  /** Called once at t = 0 before the first segment. */
+  start(ctx: ControlContext): void;
+  /** Called for each timer and armed guard of this controller, with its tag. */
+  onEvent(ctx: ControlContext, tag: number): void;
+}
+
+/** Kinds of recorded samples. */
+export const SampleKind = {
+  /** A point of the uniform grid, evaluated exactly from the segment solution. */
+  Grid: 0,
+  /** An event instant, in the topology before the event. */
+  Before: 1,
+  /** An event instant, in the topology after the event. */
+  After: 2,
+} as const;
+export type SampleKind = (typeof SampleKind)[keyof typeof SampleKind];
+
+/** Receives samples as the run streams them. `values` is reused: copy what you keep. */
+export interface SampleSink {
+  sample(timeS: number, values: Float64Array, topologyKey: number, kind: SampleKind): void;
+}
+
+/** Low-level observer of every segment and event (used by analyses for exact Jacobians). */
+export interface TraceListener {
+  /** A segment of `durationS` in topology `key`, starting from state `w0` (do not keep). */
+  segment?(key: number, durationS: number, w0: Float64Array): void;
+  /** A guard fired: `guardRow` over w in topology `before`; `which` is 'device' or 'controller'. */
+  guard?(info: { readonly timeS: number; readonly before: number; readonly row: Float64Array; readonly which: 'device' | 'controller'; readonly index: number }): void;
+  /** The topology changed at an event (after consistent switching), with the state then. */
+  switched?(timeS: number, before: number, after: number, w: Float64Array): void;
+  /** A controller overwrote a state at an event. */
+  reset?(timeS: number, stateIndex: number, value: number): void;
+}
+
+/** An integral accumulated exactly over the run: integral of a (times b when given) dt. */
+export interface IntegralSpec {
+  readonly name: string;
+  readonly of: string;
+  readonly times?: string;
+}
+
+/** Numerical settings (all optional; defaults documented). */
+export interface EngineSettings {
+  /** Currents below this magnitude count as zero in consistent switching, amperes (default 1e-9). */
+  readonly currentTolA?: number;
+  /** Diode voltages within this of the forward voltage count as not forward-biased, volts (default 1e-9). */
+  readonly voltageTolV?: number;
+  /** Events allowed at one instant before the run fails with "chattering" (default 200). */
+  readonly maxEventsPerInstant?: number;
+  /** Device flips allowed in one consistent-switching step (default 4 * devices + 8). */
+  readonly maxSwitchIterations?: number;
+  /** Cache segment propagators (default true; turning it off is for testing). */
+  readonly cachePropagators?: boolean;
+  /** Largest number of cached durations per topology (default 256). */
+  readonly maxCachedDurations?: number;
+}
+
+/** Options of one run. */
+export interface RunOptions {
+  /** Stop time, seconds. */
+  readonly stopS: number;
+  /** Time-base period for drift-free scheduling, seconds (default: stopS). Set it to the switching period. */
+  readonly timeBaseS?: number;
+  readonly controller?: Controller;
+  /** Signals to record (names). */
+  readonly record?: readonly string[];
+  readonly sink?: SampleSink;
+  /** Uniform grid step for recorded samples, seconds (none by default). */
+  readonly gridS?: number;
+  /** Record from this time on, seconds (default 0). */
+  readonly recordFromS?: number;
+  /** Record event points (default true when a sink is given). */
+  readonly recordEvents?: boolean;
+  readonly integrals?: readonly IntegralSpec[];
+  /** Initial values by state or input name (default: from the circuit description). */
+  readonly initialState?: Readonly<Record<string, number>> | Float64Array;
+  readonly settings?: EngineSettings;
+  readonly trace?: TraceListener;
+}
+
+/** Counters of a run. */
+export interface RunCounters {
+  segments: number;
+  events: number;
+  guardEvents: number;
+  topologies: number;
+  propagatorCacheHits: number;
+  propagatorCacheMisses: number;
+  taylorSegments: number;
+  exponentials: number;
+}
+
+/** Outcome of a run: a value, not an exception. */
+export interface RunResult {
+  readonly status: 'finished' | 'stopped' | 'failed';
+  readonly message: string;
+  readonly error?: SimulationError;
+  /** Time reached, seconds. */
+  readonly timeS: number;
+  /** Final extended state [x; u]. */
+  readonly state: Float64Array;
+  readonly stateNames: readonly string[];
+  readonly counters: RunCounters;
+  /** Values of the requested integrals by name. */
+  readonly integrals: Readonly<Record<string, number>>;
+  /** Final topology key and its description. */
+  readonly topologyKey: number;
+  readonly topology: string;
+}
+
+const KIND_TIMER = 0;
+const KIND_STEP = 1;
+const KIND_STOP = 2;
+
+const TAYLOR_MAX = 40;
+const FACT_INV: Float64Array = (() => {
+  const f = new Float64Array(TAYLOR_MAX + 2);
+  f[0] = 1;
+  for (let k = 1; k < f.length; k++) f[k] = f[k - 1]! / k;
+  return f;
+})();
+
+/** Number of Taylor terms giving < 1e-17 truncation for rho = ||A|| h. */
+function taylorOrder(rho: number): number {
+  if (rho === 0) return 1;
+  let term = 1;
+  for (let k = 1; k <= TAYLOR_MAX; k++) {
+    term *= rho / k;
+    if (term < 1e-18 && k >= 2) return k;
+  }
+  return TAYLOR_MAX;
+}
+
+/** The compiled model shared by runs: circuit, signals and the topology cache. */
+export class CircuitModel {
+  readonly circuit: CompiledCircuit;
+  readonly signals: SignalResolver;
+  private readonly topos = new Map<number, Topology>();
+  private readonly probes = new Map<number, Topology>();
+  constructor(spec: CircuitSpec | CompiledCircuit) {
+    this.circuit = 'branches' in spec ? spec : compileCircuit(spec);
+    this.signals = new SignalResolver(this.circuit);
+  }
+  /** Topology for a key (built once and cached). Throws SimulationError for ill-posed topologies. */
+  topology(key: number): Topology {
+    let t = this.topos.get(key);
+    if (t === undefined) {
+      t = buildTopology(this.circuit, this.signals, key);
+      this.topos.set(key, t);
+    }
+    return t;
+  }
+  /** Topology with open devices given a probe resistance (for interrupted currents). */
+  probe(key: number): Topology {
+    let t = this.probes.get(key);
+    if (t === undefined) {
+      t = buildTopology(this.circuit, this.signals, key, true);
+      this.probes.set(key, t);
+    }
+    return t;
+  }
+  get topologyCount(): number {
+    return this.topos.size;
+  }
+  /** Every measurable signal with its unit. */
+  listSignals(): readonly SignalInfo[] {
+    return this.signals.list;
+  }
+  /** Linear reference of a signal (throws with the list of known names when unknown). */
+  resolve(name: string): LinearRef {
+    return this.signals.resolve(name);
+  }
+}
+
+interface ActiveGuard {
+  row: Float64Array;
+  drow: Float64Array;
+  d4row: Float64Array;
+  dir: number; // +1 rising, -1 falling, 0 either
+  owner: number; // >= 0 controller guard index, < 0: -(device+1)
+}
+
+/**
+ * A run that can be advanced event by event. `simulate()` is a short loop over `step()`.
+ */
+export class Simulation {
+  readonly model: CircuitModel;
+  readonly options: RunOptions;
+  status: 'running' | 'finished' | 'stopped' | 'failed' = 'running';
+  message = '';
+  error: SimulationError | undefined;
+  readonly counters: RunCounters = {
+    segments: 0, events: 0, guardEvents: 0, topologies: 0,
+    propagatorCacheHits: 0, propagatorCacheMisses: 0, taylorSegments: 0, exponentials: 0,
+  };
+
+  private readonly c: CompiledCircuit;
+  private readonly nx: number;
+  private readonly n: number;
+  private readonly tb: number;
+  private readonly stopCycle: number;
+  private readonly stopOff: number;
+  private cyc = 0;
+  private off = 0;
+  private key = 0;
+  private topo!: Topology;
+  private readonly w: Float64Array;
+  private readonly w1: Float64Array;
+  private readonly wtmp: Float64Array;
+  private readonly taylorV: Float64Array;
+  private readonly polyC = new Float64Array(TAYLOR_MAX + 1);
+  // settings
+  private readonly iTol: number;
+  private readonly vTol: number;
+  private readonly maxPerInstant: number;
+  private readonly maxFlips: number;
+  private readonly useCache: boolean;
+  private readonly maxCached: number;
+  // event queue (small)
+  private qCyc = new Float64Array(16);
+  private qOff = new Float64Array(16);
+  private qKind = new Int32Array(16);
+  private qTag = new Float64Array(16);
+  private qSeq = new Float64Array(16);
+  private qLen = 0;
+  private seq = 0;
+  // gates
+  private readonly gateMask: Int32Array;
+  private readonly gateOn: Uint8Array;
+  private readonly channelMask: number;
+  private turnedOff = 0;
+  // guards
+  private readonly guardRefs: LinearRef[] = [];
+  private readonly guardThreshold: number[] = [];
+  private readonly guardDir: number[] = [];
+  private guardArmed: Int32Array = new Int32Array(0);
+  private guardTag: Float64Array = new Float64Array(0);
+  private active: ActiveGuard[] = [];
+  private activeDirty = true;
+  private readonly deviceGuards = new Map<number, ActiveGuard[]>();
+  // recording
+  private readonly recRefs: LinearRef[];
+  private readonly recRows = new Map<number, Float64Array[]>();
+  private readonly recValues: Float64Array;
+  private readonly recordEvents: boolean;
+  private readonly gridS: number;
+  private readonly recordFrom: number;
+  private gridIndex = 0;
+  // integrals
+  private readonly intRefs: { a: LinearRef; b: LinearRef | null }[];
+  private readonly intValues: Float64Array;
+  private readonly intRows = new Map<number, { a: Float64Array; b: Float64Array | null }[]>();
+  // controller
+  private readonly ctrl: Controller | undefined;
+  private readonly ctx: ControlContext;
+  private inStart = false;
+  private stopRequest: string | null = null;
+  private instantCount = 0;
+  private instantGuards = new Set<string>();
+  private readonly stepTimes: { atS: number; input: number; value: number }[];
+
+  constructor(model: CircuitModel | CircuitSpec, options: RunOptions) {
+    this.model = model instanceof CircuitModel ? model : new CircuitModel(model);
+    this.options = options;
+    const c = (this.c = this.model.circuit);
+    this.nx = c.nx;
+    this.n = c.nx + c.nu;
+    const n = this.n;
+    if (!(typeof options?.stopS === 'number' && Number.isFinite(options.stopS) && options.stopS >= 0)) {
+      throw new RangeError(`stopS must be a finite time >= 0 s, got ${String(options?.stopS)}`);
+    }
+    const tb = options.timeBaseS ?? (options.stopS > 0 ? options.stopS : 1);
+    if (!(Number.isFinite(tb) && tb > 0)) throw new RangeError(`timeBaseS must be a finite time > 0 s, got ${String(tb)}`);
+    this.tb = tb;
+    this.stopCycle = Math.floor(options.stopS / tb);
+    this.stopOff = options.stopS - this.stopCycle * tb;
+    const s = options.settings ?? {};
+    this.iTol = s.currentTolA ?? 1e-9;
+    this.vTol = s.voltageTolV ?? 1e-9;
+    this.maxPerInstant = s.maxEventsPerInstant ?? 200;
+    this.maxFlips = s.maxSwitchIterations ?? 4 * c.devices.length + 8;
+    this.useCache = s.cachePropagators ?? true;
+    this.maxCached = s.maxCachedDurations ?? 256;
+    this.w = new Float64Array(c.initialState);
+    this.w1 = new Float64Array(n);
+    this.wtmp = new Float64Array(n);
+    this.taylorV = new Float64Array((TAYLOR_MAX + 1) * n);
+    if (options.initialState !== undefined) this.applyInitial(options.initialState);
+
+    this.gateMask = new Int32Array(c.gates.length);
+    this.gateOn = new Uint8Array(c.gates.length);
+    let cm = 0;
+    c.devices.forEach((d, i) => {
+      if (d.kind === 'channel') {
+        this.gateMask[d.gate]! |= 1 << i;
+        cm |= 1 << i;
+        const spec = c.spec.elements.find((e) => e.id === d.element);
+        if (spec?.kind === 'switch' && spec.initiallyOn) {
+          this.gateOn[d.gate] = 1;
+          this.key |= 1 << i;
+        }
+      }
+    });
+    this.channelMask = cm;
+
+    const rec = options.record ?? [];
+    this.recRefs = rec.map((name) => this.resolveOrThrow(name, 'record'));
+    this.recValues = new Float64Array(rec.length);
+    this.recordEvents = options.recordEvents ?? options.sink !== undefined;
+    this.gridS = options.gridS ?? 0;
+    if (options.gridS !== undefined && !(Number.isFinite(options.gridS) && options.gridS > 0)) throw new RangeError(`gridS must be a time > 0 s, got ${String(options.gridS)}`);
+    this.recordFrom = options.recordFromS ?? 0;
+    this.intRefs = (options.integrals ?? []).map((spec) => ({
+      a: this.resolveOrThrow(spec.of, `integrals.${spec.name}.of`),
+      b: spec.times === undefined ? null : this.resolveOrThrow(spec.times, `integrals.${spec.name}.times`),
+    }));
+    this.intValues = new Float64Array(this.intRefs.length);
+    this.stepTimes = c.sourceSteps.slice();
+    this.ctrl = options.controller;
+    this.ctx = this.makeContext();
+
+    try {
+      for (let i = 0; i < this.stepTimes.length; i++) {
+        const st = this.stepTimes[i]!;
+        if (st.atS === 0) this.w[this.nx + st.input] = st.value;
+        else {
+          const k = Math.floor(st.atS / tb);
+          this.push(k, st.atS - k * tb, KIND_STEP, i);
+        }
+      }
+      this.push(this.stopCycle, this.stopOff, KIND_STOP, 0);
+      if (this.ctrl) {
+        this.inStart = true;
+        this.ctrl.start(this.ctx);
+        this.inStart = false;
+      }
+      this.settle();
+      this.topo = this.model.topology(this.key);
+      this.counters.topologies = this.model.topologyCount;
+      if (this.recordEvents && this.inRecordWindow(0)) this.emit(SampleKind.After);
+      if (this.gridS > 0) this.gridIndex = Math.max(0, Math.ceil(this.recordFrom / this.gridS - 1e-12));
+      this.emitGridUpTo(0, 0);
+      if (options.stopS === 0) this.finish('finished', 'reached the stop time');
+    } catch (err) {
+      this.fail(err);
+    }
+  }
+
+  private resolveOrThrow(name: string, where: string): LinearRef {
+    try {
+      return this.model.resolve(name);
+    } catch (err) {
+      throw new RangeError(`${where}: ${(err as Error).message}`);
+    }
+  }
+
+  private applyInitial(init: Readonly<Record<string, number>> | Float64Array): void {
+    const c = this.c;
+    if (init instanceof Float64Array) {
+      if (init.length !== this.n && init.length !== this.nx) throw new RangeError(`initialState must have ${this.nx} or ${this.n} entries, got ${init.length}`);
+      this.w.set(init);
+      return;
+    }
+    for (const [name, v] of Object.entries(init)) {
+      if (!Number.isFinite(v)) throw new RangeError(`initialState.${name} must be finite, got ${String(v)}`);
+      let i = c.stateNames.indexOf(name);
+      if (i < 0) {
+        const alias = c.stateNames.indexOf(`${name}.charge`);
+        i = alias >= 0 ? alias : c.stateNames.indexOf(`${name}.current`);
+      }
+      if (i < 0) {
+        const u = c.inputNames.indexOf(name);
+        if (u > 0) i = this.nx + u;
+      }
+      if (i < 0) throw new RangeError(`initialState: unknown state "${name}"; states: ${c.stateNames.join(', ')}`);
+      this.w[i] = v;
+    }
+  }
+
+  /** Absolute time now, seconds. */
+  get timeS(): number {
+    return this.cyc * this.tb + this.off;
+  }
+  /** Current extended state (a live view: do not modify). */
+  get state(): Float64Array {
+    return this.w;
+  }
+  /** Current topology key. */
+  get topologyKey(): number {
+    return this.key;
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // event queue
+
+  private push(cyc: number, off: number, kind: number, tag: number): void {
+    if (this.qLen === this.qCyc.length) {
+      const grow = <T extends Float64Array | Int32Array>(a: T): T => {
+        const b = new (a.constructor as new (n: number) => T)(a.length * 2);
+        b.set(a);
+        return b;
+      };
+      this.qCyc = grow(this.qCyc);
+      this.qOff = grow(this.qOff);
+      this.qKind = grow(this.qKind);
+      this.qTag = grow(this.qTag);
+      this.qSeq = grow(this.qSeq);
+    }
+    // normalise the offset into [0, tb)
+    if (off >= this.tb || off < 0) {
+      const k = Math.floor(off / this.tb);
+      cyc += k;
+      off -= k * this.tb;
+      if (off < 0) off = 0;
+    }
+    const i = this.qLen++;
+    this.qCyc[i] = cyc;
+    this.qOff[i] = off;
+    this.qKind[i] = kind;
+    this.qTag[i] = tag;
+    this.qSeq[i] = this.seq++;
+  }
+
+  private removeTimer(tag: number): void {
+    for (let i = 0; i < this.qLen; i++) {
+      if (this.qKind[i] === KIND_TIMER && this.qTag[i] === tag) {
+        const last = --this.qLen;
+        this.qCyc[i] = this.qCyc[last]!;
+        this.qOff[i] = this.qOff[last]!;
+        this.qKind[i] = this.qKind[last]!;
+        this.qTag[i] = this.qTag[last]!;
+        this.qSeq[i] = this.qSeq[last]!;
+        return;
+      }
+    }
+  }
+
+  /** index of the earliest queue entry (ties: stop last, then by kind, then by scheduling order) */
+  private nextIndex(): number {
+    let best = 0;
+    for (let i = 1; i < this.qLen; i++) {
+      const dc = this.qCyc[i]! - this.qCyc[best]!;
+      if (dc < 0 || (dc === 0 && (this.qOff[i]! < this.qOff[best]! ||
+        (this.qOff[i] === this.qOff[best] && this.before(i, best))))) best = i;
+    }
+    return best;
+  }
+
+  private before(i: number, j: number): boolean {
+    const ki = this.qKind[i]!, kj = this.qKind[j]!;
+    // source steps first, then timers, then stop
+    const ri = ki === KIND_STEP ? 0 : ki === KIND_TIMER ? 1 : 2;
+    const rj = kj === KIND_STEP ? 0 : kj === KIND_TIMER ? 1 : 2;
+    if (ri !== rj) return ri < rj;
+    return this.qSeq[i]! < this.qSeq[j]!;
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // controller context
+
+  private makeContext(): ControlContext {
+    // eslint-disable-next-line @typescript-eslint/no-this-alias
+    const sim = this;
+    const signals: LinearRef[] = [];
+    const rowCache = new Map<number, Float64Array[]>();
+    return {
+      get timeS() {
+        return sim.timeS;
+      },
+      get cycle() {
+        return sim.cyc;
+      },
+      get offsetS() {
+        return sim.off;
+      },
+      get timeBaseS() {
+        return sim.tb;
+      },
+      signal(name) {
+        signals.push(sim.resolveOrThrow(name, 'controller signal'));
+        return signals.length - 1;
+      },
+      read(h) {
+        let rows = rowCache.get(sim.key);
+        if (rows === undefined) {
+          rows = [];
+          rowCache.set(sim.key, rows);
+        }
+        let r = rows[h];
+        if (r === undefined) {
+          const t = sim.model.topology(sim.key);
+          r = rows[h] = t.row(signals[h]!);
+        }
+        let s = 0;
+        const w = sim.w;
+        for (let j = 0; j < r.length; j++) s += r[j]! * w[j]!;
+        return s;
+      },
+      gate(name) {
+        const g = sim.c.gates.indexOf(name);
+        if (g < 0) throw new RangeError(`unknown gate "${name}"; gates: ${sim.c.gates.join(', ') || '(none)'}`);
+        return g;
+      },
+      setGate(g, on) {
+        const mask = sim.gateMask[g]!;
+        if (on) {
+          sim.gateOn[g] = 1;
+          sim.key |= mask;
+        } else {
+          if (sim.key & mask) sim.turnedOff |= sim.key & mask;
+          sim.gateOn[g] = 0;
+          sim.key &= ~mask;
+        }
+      },
+      isGateOn(g) {
+        return sim.gateOn[g] === 1;
+      },
+      at(tag, cycle, offsetS) {
+        sim.removeTimer(tag);
+        sim.push(cycle, offsetS, KIND_TIMER, tag);
+      },
+      after(tag, delayS) {
+        if (!(delayS >= 0)) throw new RangeError(`timer delay must be >= 0 s, got ${String(delayS)}`);
+        sim.removeTimer(tag);
+        sim.push(sim.cyc, sim.off + delayS, KIND_TIMER, tag);
+      },
+      cancel(tag) {
+        sim.removeTimer(tag);
+      },
+      guard(spec) {
+        if (!sim.inStart) throw new Error('guards are defined in Controller.start');
+        const terms = spec.terms ?? (spec.signal !== undefined ? [{ signal: spec.signal, gain: 1 }] : []);
+        if (terms.length === 0) throw new RangeError('a guard needs a signal or terms');
+        const mna = new Map<number, number>();
+        const w = new Map<number, number>();
+        for (const t of terms) {
+          const r = sim.resolveOrThrow(t.signal, 'guard');
+          r.mna.forEach((g, k) => mna.set(k, (mna.get(k) ?? 0) + g * t.gain));
+          r.w.forEach((g, k) => w.set(k, (w.get(k) ?? 0) + g * t.gain));
+        }
+        const thr = spec.threshold ?? 0;
+        if (!Number.isFinite(thr)) throw new RangeError(`guard threshold must be finite, got ${String(thr)}`);
+        if (thr !== 0) w.set(sim.nx, (w.get(sim.nx) ?? 0) - thr);
+        sim.guardRefs.push({ mna, w });
+        sim.guardThreshold.push(thr);
+        sim.guardDir.push(spec.direction === 'rising' ? 1 : spec.direction === 'falling' ? -1 : 0);
+        const armed = new Int32Array(sim.guardRefs.length);
+        armed.set(sim.guardArmed);
+        sim.guardArmed = armed;
+        const tags = new Float64Array(sim.guardRefs.length);
+        tags.set(sim.guardTag);
+        sim.guardTag = tags;
+        return sim.guardRefs.length - 1;
+      },
+      arm(g, tag) {
+        if (sim.guardArmed[g] !== 1 || sim.guardTag[g] !== tag) {
+          sim.guardArmed[g] = 1;
+          sim.guardTag[g] = tag;
+          sim.activeDirty = true;
+        }
+      },
+      disarm(g) {
+        if (sim.guardArmed[g] === 1) {
+          sim.guardArmed[g] = 0;
+          sim.activeDirty = true;
+        }
+      },
+      block(id) {
+        const b = sim.c.blocks.find((x) => x.id === id);
+        if (b === undefined) throw new RangeError(`unknown block "${id}"`);
+        return b.firstState;
+      },
+      setBlockState(b, value, index = 0) {
+        if (!Number.isFinite(value)) throw new RangeError(`block state value must be finite, got ${String(value)}`);
+        sim.w[b + index] = value;
+        sim.options.trace?.reset?.(sim.timeS, b + index, value);
+      },
+      stop(message) {
+        sim.stopRequest = message;
+      },
+    };
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // guards
+
+  private guardRowsFor(t: Topology, row: Float64Array): ActiveGuard {
+    const n = this.n, nx = this.nx, m = t.m;
+    const mul = (r: Float64Array): Float64Array => {
+      const out = new Float64Array(n);
+      for (let i = 0; i < nx; i++) {
+        const ri = r[i]!;
+        if (ri === 0) continue;
+        for (let j = 0; j < n; j++) out[j] += ri * m[i * n + j]!;
+      }
+      return out;
+    };
+    const d1 = mul(row);
+    const d4 = mul(mul(mul(d1)));
+    return { row, drow: d1, d4row: d4, dir: 0, owner: 0 };
+  }
+
+  private rebuildActive(): void {
+    const t = this.topo;
+    let dg = this.deviceGuards.get(t.key);
+    if (dg === undefined) {
+      dg = [];
+      const c = this.c;
+      for (let d = 0; d < c.devices.length; d++) {
+        const dev = c.devices[d]!;
+        if (dev.kind !== 'diode') continue;
+        const on = (t.key >>> d) & 1;
+        let g: ActiveGuard;
+        if (on) {
+          g = this.guardRowsFor(t, t.deviceCurrent[d]!);
+          g.dir = -1;
+        } else {
+          const r = new Float64Array(t.deviceVoltage[d]!);
+          r[this.nx]! -= c.branches[dev.branch]!.forwardVolts;
+          g = this.guardRowsFor(t, r);
+          g.dir = 1;
+        }
+        g.owner = -(d + 1);
+        dg.push(g);
+      }
+      this.deviceGuards.set(t.key, dg);
+    }
+    const act = dg.slice();
+    for (let g = 0; g < this.guardRefs.length; g++) {
+      if (this.guardArmed[g] !== 1) continue;
+      let row = t.guardRows[g];
+      let ag: ActiveGuard;
+      if (row === undefined) {
+        row = t.guardRows[g] = t.row(this.guardRefs[g]!);
+        ag = this.guardRowsFor(t, row);
+        t.guardDerivRows[g] = ag.drow;
+        (t as unknown as { guardD4Rows: Float64Array[] }).guardD4Rows ??= [];
+        (t as unknown as { guardD4Rows: Float64Array[] }).guardD4Rows[g] = ag.d4row;
+      } else {
+        ag = { row, drow: t.guardDerivRows[g]!, d4row: (t as unknown as { guardD4Rows: Float64Array[] }).guardD4Rows[g]!, dir: 0, owner: 0 };
+      }
+      ag.dir = this.guardDir[g]!;
+      ag.owner = g;
+      act.push(ag);
+    }
+    this.active = act;
+    this.activeDirty = false;
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // propagation
+
+  /** Propagates w0 over h in topology t into out (exact). */
+  private propagate(t: Topology, h: number, w0: Float64Array, out: Float64Array): void {
+    const n = this.n, nx = this.nx;
+    let E: Float64Array | null | undefined = null;
+    if (this.useCache) {
+      if (t.lastH === h) E = t.lastE;
+      else {
+        E = t.cache.get(h);
+        if (E !== undefined) {
+          t.lastH = h;
+          t.lastE = E;
+        }
+      }
+    }
+    if (E) {
+      this.counters.propagatorCacheHits++;
+    } else {
+      this.counters.propagatorCacheMisses++;
+      const rho = t.normA * h;
+      const room = this.useCache && t.cache.size < this.maxCached;
+      if (!room && rho <= 1) {
+        this.taylor(t, h, w0, out, 0);
+        this.counters.taylorSegments++;
+        return;
+      }
+      if (room || !this.useCache) {
+        E = t.computeE(h);
+        this.counters.exponentials++;
+        if (this.useCache) {
+          t.cache.set(h, E);
+          t.lastH = h;
+          t.lastE = E;
+        }
+      } else {
+        // split: h = k * baseStep + r, E(k baseStep) cached by k, Taylor over r
+        const hb = t.baseStep;
+        const k = Math.floor(h / hb);
+        const r = h - k * hb;
+        let Ek = t.multiples.get(k);
+        if (Ek === undefined) {
+          Ek = t.computeE(k * hb);
+          this.counters.exponentials++;
+          if (t.multiples.size > 1024) t.multiples.clear();
+          t.multiples.set(k, Ek);
+        }
+        this.taylor(t, r, w0, this.wtmp, 0);
+        this.matvec(Ek, this.wtmp, out);
+        return;
+      }
+    }
+    for (let i = 0; i < nx; i++) {
+      let s = 0;
+      const o = i * n;
+      for (let j = 0; j < n; j++) s += E[o + j]! * w0[j]!;
+      out[i] = s;
+    }
+    for (let j = nx; j < n; j++) out[j] = w0[j]!;
+  }
+
+  private matvec(E: Float64Array, w0: Float64Array, out: Float64Array): void {
+    const n = this.n, nx = this.nx;
+    for (let i = 0; i < nx; i++) {
+      let s = 0;
+      const o = i * n;
+      for (let j = 0; j < n; j++) s += E[o + j]! * w0[j]!;
+      out[i] = s;
+    }
+    for (let j = nx; j < n; j++) out[j] = w0[j]!;
+  }
+
+  /**
+   * Taylor series of the exact solution: fills taylorV with v_k = (h^k / k!) M^k w0 for
+   * k = 0..K (when keep) and writes w(h) into out. Used only for normA * h <= 1.
+   */
+  private taylor(t: Topology, h: number, w0: Float64Array, out: Float64Array, keep: number): number {
+    const n = this.n, nx = this.nx, m = t.m;
+    const K = taylorOrder(t.normA * h);
+    const V = this.taylorV;
+    for (let j = 0; j < n; j++) {
+      V[j] = w0[j]!;
+      out[j] = w0[j]!;
+    }
+    for (let k = 1; k <= K; k++) {
+      const prev = (k - 1) * n;
+      const cur = k * n;
+      const f = h / k;
+      for (let i = 0; i < nx; i++) {
+        let s = 0;
+        const o = i * n;
+        // after the first product only the x part of the previous term is non-zero
+        const lim = k === 1 ? n : nx;
+        for (let j = 0; j < lim; j++) s += m[o + j]! * V[prev + j]!;
+        s *= f;
+        V[cur + i] = s;
+        out[i]! += s;
+      }
+      for (let j = nx; j < n; j++) V[cur + j] = 0;
+    }
+    void keep;
+    return K;
+  }
+
+  /** Exact state at offset tau (0 <= tau) from w0 in topology t, into out. */
+  private evalAt(t: Topology, tau: number, w0: Float64Array, out: Float64Array): void {
+    if (tau === 0) {
+      out.set(w0);
+      return;
+    }
+    if (t.normA * tau <= 1) {
+      this.taylor(t, tau, w0, out, 0);
+      return;
+    }
+    const hb = t.baseStep;
+    const k = Math.floor(tau / hb);
+    const r = tau - k * hb;
+    let Ek = t.multiples.get(k);
+    if (Ek === undefined) {
+      Ek = t.computeE(k * hb);
+      this.counters.exponentials++;
+      if (t.multiples.size > 1024) t.multiples.clear();
+      t.multiples.set(k, Ek);
+    }
+    const tmp = new Float64Array(this.n);
+    this.taylor(t, r, w0, tmp, 0);
+    this.matvec(Ek, tmp, out);
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // guard screening and location
+
+  private static dot(r: Float64Array, w: Float64Array): number {
+    let s = 0;
+    for (let j = 0; j < r.length; j++) s += r[j]! * w[j]!;
+    return s;
+  }
+
+  /**
+   * Could the function f (sign-normalised so the event is an upward crossing) have an upward
+   * zero crossing in (0, h]? Uses the values and slopes at both ends, the extrema of the cubic
+   * Hermite interpolant, and a bound on its error from the fourth derivative at both ends.
+   */
+  private static maybeRising(f0: number, f1: number, d0: number, d1: number, e4: number, h: number): boolean {
+    if (f0 < 0 && f1 >= 0) return true;
+    // Hermite cubic on s in [0, 1]: p(s) with p(0)=f0, p(1)=f1, p'(0)=d0 h, p'(1)=d1 h
+    const m0 = d0 * h, m1 = d1 * h;
+    const bound = 2 * (h * h * h * h / 384) * e4 + 1e-15 * (Math.abs(f0) + Math.abs(f1));
+    // p'(s) = a s^2 + b s + c
+    const A = 6 * f0 + 3 * m0 - 6 * f1 + 3 * m1;
+    const B = -6 * f0 - 4 * m0 + 6 * f1 - 2 * m1;
+    const C = m0;
+    const p = (s: number): number => {
+      const s2 = s * s, s3 = s2 * s;
+      return (2 * s3 - 3 * s2 + 1) * f0 + (s3 - 2 * s2 + s) * m0 + (-2 * s3 + 3 * s2) * f1 + (s3 - s2) * m1;
+    };
+    let lo = Math.min(f0, f1), hi = Math.max(f0, f1);
+    const consider = (s: number): void => {
+      if (s > 0 && s < 1) {
+        const v = p(s);
+        if (v < lo) lo = v;
+        if (v > hi) hi = v;
+      }
+    };
+    // derivative p'(s) = 3 a' s^2 ... expressed directly: coefficients of p' are (A, B, C) scaled
+    const qa = A, qb = B, qc = C;
+    if (Math.abs(qa) > 1e-300) {
+      const disc = qb * qb - 4 * qa * qc;
+      if (disc >= 0) {
+        const sq = Math.sqrt(disc);
+        consider((-qb - sq) / (2 * qa));
+        consider((-qb + sq) / (2 * qa));
+      }
+    } else if (Math.abs(qb) > 1e-300) consider(-qc / qb);
+    if (f0 < 0) return hi + bound >= 0; // starts below: may rise to zero inside
+    // starts at or above zero: an upward crossing needs a dip below zero first
+    return lo - bound < 0 && f1 + bound >= 0;
+  }
+
+  /**
+   * Finds the first upward zero crossing of dir * (row . w(tau)) in (0, h] on the exact solution
+   * from w0 in topology t. Returns tau or -1. Works in pieces with normA * piece <= 1, using the
+   * Taylor polynomial of the guard on each piece.
+   */
+  private locate(t: Topology, g: ActiveGuard, sign: number, w0: Float64Array, h: number, startAbove: boolean): number {
+    const n = this.n;
+    const pieceMax = t.normA > 0 ? 1 / t.normA : h;
+    let a = 0;
+    const wa = new Float64Array(w0);
+    const wb = new Float64Array(n);
+    let above = startAbove;
+    for (let guard = 0; a < h && guard < 1_000_000; guard++) {
+      const len = Math.min(pieceMax, h - a);
+      const K = this.taylor(t, len, wa, wb, 1);
+      // guard polynomial coefficients in s = tau / len
+      const V = this.taylorV;
+      const row = g.row;
+      const pc = this.polyC;
+      for (let k = 0; k <= K; k++) {
+        let s = 0;
+        for (let j = 0; j < n; j++) s += row[j]! * V[k * n + j]!;
+        pc[k] = sign * s;
+      }
+      const poly = (s: number): number => {
+        let v = pc[K]!;
+        for (let k = K - 1; k >= 0; k--) v = v * s + pc[k]!;
+        return v;
+      };
+      const dpoly = (s: number): number => {
+        let v = K * pc[K]!;
+        for (let k = K - 1; k >= 1; k--) v = v * s + k * pc[k]!;
+        return v;
+      };
+      // sample to find the first upward crossing in this piece
+      const SAMPLES = 64;
+      let sPrev = 0;
+      let fPrev = poly(0);
+      let state = above;
+      for (let i = 1; i <= SAMPLES; i++) {
+        const s = i / SAMPLES;
+        const f = poly(s);
+        if (state) {
+          if (f < 0) state = false;
+        } else if (f >= 0 && fPrev < 0) {
+          // bracket [sPrev, s]: safeguarded Newton
+          let lo = sPrev, hi = s;
+          let x = lo - fPrev * (hi - lo) / (f - fPrev);
+          if (!(x > lo && x < hi)) x = 0.5 * (lo + hi);
+          for (let it = 0; it < 100; it++) {
+            const fx = poly(x);
+            if (fx < 0) lo = x;
+            else hi = x;
+            const d = dpoly(x);
+            let xn = d !== 0 ? x - fx / d : 0.5 * (lo + hi);
+            if (!(xn > lo && xn < hi)) xn = 0.5 * (lo + hi);
+            if (Math.abs(xn - x) <= 1e-16 * Math.max(1, Math.abs(x)) || hi - lo <= 1e-16) {
+              x = xn;
+              break;
+            }
+            x = xn;
+          }
+          // take the upper end of the bracket side so the crossing has happened at the event
+          const sx = Math.min(Math.max(x, lo), hi);
+          return a + sx * len;
+        }
+        sPrev = s;
+        fPrev = f;
+      }
+      above = state;
+      a += len;
+      wa.set(wb);
+    }
+    return -1;
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // consistent switching
+
+  private settle(): void {
+    const c = this.c;
+    const w = this.w;
+    let visited: number[] | null = null;
+    for (let iter = 0; ; iter++) {
+      if (iter > this.maxFlips) {
+        throw new SimulationError('inconsistent-switching', `no consistent conduction state found after ${this.maxFlips} device changes at t = ${this.timeS} s (last [${describeKey(c, this.key)}])`, c.devices.map((d) => d.id), this.timeS);
+      }
+      const t = this.model.topology(this.key);
+      // inductors with no path
+      const held = t.heldInductors;
+      let interrupted = -1;
+      for (let i = 0; i < held.length; i++) {
+        const s = held[i]!;
+        if (Math.abs(w[s]!) > this.iTol) {
+          interrupted = s;
+          break;
+        }
+      }
+      if (interrupted >= 0) {
+        const p = this.model.probe(this.key);
+        let best = -1, bestV = this.vTol;
+        for (let d = 0; d < c.devices.length; d++) {
+          const dev = c.devices[d]!;
+          if (dev.kind !== 'diode' || (this.key >>> d) & 1) continue;
+          const v = Simulation.dot(p.deviceVoltage[d]!, w) - c.branches[dev.branch]!.forwardVolts;
+          if (v > bestV) {
+            bestV = v;
+            best = d;
+          }
+        }
+        if (best < 0) {
+          const ind = c.branches.find((b) => b.stateIndex === interrupted)!;
+          const opened = c.devices.filter((_, d) => (this.turnedOff >>> d) & 1).map((d) => d.id);
+          throw new SimulationError(
+            'no-freewheeling-path',
+            `no freewheeling path: inductor ${ind.id} carries ${w[interrupted]!.toPrecision(6)} A at t = ${this.timeS} s and ${opened.length ? `opening ${opened.join(', ')}` : 'this topology'} leaves it no path (no diode or body diode can take the current)`,
+            [ind.id, ...opened],
+            this.timeS,
+          );
+        }
+        visited = this.flip(best, visited);
+        continue;
+      }
+      for (let i = 0; i < held.length; i++) w[held[i]!] = 0;
+      let worst = -1, worstV = 0, turnOn = false;
+      for (let d = 0; d < c.devices.length; d++) {
+        const dev = c.devices[d]!;
+        if (dev.kind !== 'diode') continue;
+        if ((this.key >>> d) & 1) {
+          const i = Simulation.dot(t.deviceCurrent[d]!, w);
+          if (i < -this.iTol && !turnOn && -i > worstV) {
+            worst = d;
+            worstV = -i;
+          }
+        } else {
+          const v = Simulation.dot(t.deviceVoltage[d]!, w) - c.branches[dev.branch]!.forwardVolts;
+          if (v > this.vTol && (!turnOn || v > worstV)) {
+            worst = d;
+            worstV = v;
+            turnOn = true;
+          }
+        }
+      }
+      if (worst < 0) return;
+      visited = this.flip(worst, visited);
+    }
+  }
+
+  private flip(d: number, visited: number[] | null): number[] {
+    const v = visited ?? [this.key];
+    this.key ^= 1 << d;
+    if (v.includes(this.key)) {
+      const c = this.c;
+      const involved = [...new Set(v.map((k) => k ^ this.key).reduce((a, b) => a | b, 0) ? c.devices.filter((_, i) => v.some((k) => ((k ^ this.key) >>> i) & 1)).map((x) => x.id) : [c.devices[d]!.id])];
+      throw new SimulationError(
+        'inconsistent-switching',
+        `consistent switching cycles between conduction states of ${involved.join(', ')} at t = ${this.timeS} s`,
+        involved,
+        this.timeS,
+      );
+    }
+    v.push(this.key);
+    return v;
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // recording
+
+  private inRecordWindow(t: number): boolean {
+    return t >= this.recordFrom;
+  }
+
+  private emit(kind: SampleKind): void {
+    const sink = this.options.sink;
+    if (sink === undefined) return;
+    this.fillValues(this.model.topology(this.key), this.w);
+    sink.sample(this.timeS, this.recValues, this.key, kind);
+  }
+
+  private fillValues(t: Topology, w: Float64Array): void {
+    let rows = this.recRows.get(t.key);
+    if (rows === undefined) {
+      rows = this.recRefs.map((r) => t.row(r));
+      this.recRows.set(t.key, rows);
+    }
+    for (let i = 0; i < rows.length; i++) this.recValues[i] = Simulation.dot(rows[i]!, w);
+  }
+
+  /** Emits grid samples with times in (segment start, segment start + h] from w0 in topology t. */
+  private emitGridUpTo(t0: number, h: number, t?: Topology, w0?: Float64Array): void {
+    if (this.gridS <= 0 || this.options.sink === undefined) return;
+    const sink = this.options.sink;
+    for (;;) {
+      const tg = this.gridIndex * this.gridS;
+      if (tg > t0 + h || tg > this.options.stopS) return;
+      const tau = Math.max(0, tg - t0);
+      if (t === undefined || w0 === undefined) {
+        this.fillValues(this.model.topology(this.key), this.w);
+      } else {
+        this.evalAt(t, tau, w0, this.wtmp);
+        this.fillValues(t, this.wtmp);
+      }
+      sink.sample(tg, this.recValues, t?.key ?? this.key, SampleKind.Grid);
+      this.gridIndex++;
+    }
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // integrals (Van Loan, 1978, "Computing integrals involving the matrix exponential", with
+  // the doubling G(2h) = G(h) + E(h)^T G(h) E(h) so that no growing exponential is formed)
+
+  private accumulate(t: Topology, h: number, w0: Float64Array): void {
+    if (this.intRefs.length === 0 || h <= 0) return;
+    let rows = this.intRows.get(t.key);
+    if (rows === undefined) {
+      rows = this.intRefs.map((r) => ({ a: t.row(r.a), b: r.b ? t.row(r.b) : null }));
+      this.intRows.set(t.key, rows);
+    }
+    const n = this.n;
+    const M = t.fullM();
+    let norm = 0;
+    for (let i = 0; i < n; i++) {
+      let s = 0;
+      for (let j = 0; j < n; j++) s += Math.abs(M[i * n + j]!);
+      norm = Math.max(norm, s);
+    }
+    const sq = norm * h > 0.5 ? Math.ceil(Math.log2((norm * h) / 0.5)) : 0;
+    const h0 = h / 2 ** sq;
+    // base: E0 = expm(M h0); L0 = int_0^h0 E; for each quadratic, G0 = int_0^h0 E^T Q E
+    const big = new Float64Array(4 * n * n);
+    const n2 = 2 * n;
+    for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) {
+      big[i * n2 + j] = M[i * n + j]! * h0;
+      if (i === j) big[i * n2 + n + j] = h0;
+    }
+    const F = expm(big, n2);
+    this.counters.exponentials++;
+    let E: Float64Array = new Float64Array(n * n);
+    const L: Float64Array = new Float64Array(n * n);
+    for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) {
+      E[i * n + j] = F[i * n2 + j]!;
+      L[i * n + j] = F[i * n2 + n + j]!;
+    }
+    const quad = rows.map((r) => {
+      if (r.b === null) return null;
+      const Q = new Float64Array(n * n);
+      for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) Q[i * n + j] = 0.5 * (r.a[i]! * r.b[j]! + r.b[i]! * r.a[j]!);
+      const C = new Float64Array(4 * n * n);
+      for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) {
+        C[i * n2 + j] = -M[j * n + i]! * h0;
+        C[i * n2 + n + j] = Q[i * n + j]! * h0;
+        C[(n + i) * n2 + n + j] = M[i * n + j]! * h0;
+      }
+      const FC = expm(C, n2);
+      this.counters.exponentials++;
+      const Gm = new Float64Array(n * n);
+      // G = F22^T F12
+      for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) {
+        let s = 0;
+        for (let k = 0; k < n; k++) s += FC[(n + k) * n2 + n + i]! * FC[k * n2 + n + j]!;
+        Gm[i * n + j] = s;
+      }
+      return Gm;
+    });
+    const mm = (X: Float64Array, Y: Float64Array): Float64Array => {
+      const Z = new Float64Array(n * n);
+      for (let i = 0; i < n; i++) for (let k = 0; k < n; k++) {
+        const x = X[i * n + k]!;
+        if (x === 0) continue;
+        for (let j = 0; j < n; j++) Z[i * n + j] += x * Y[k * n + j]!;
+      }
+      return Z;
+    };
+    const tr = (X: Float64Array): Float64Array => {
+      const Z = new Float64Array(n * n);
+      for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) Z[i * n + j] = X[j * n + i]!;
+      return Z;
+    };
+    for (let s = 0; s < sq; s++) {
+      const EL = mm(E, L);
+      for (let i = 0; i < L.length; i++) L[i] += EL[i]!;
+      const Et = tr(E);
+      for (let q = 0; q < quad.length; q++) {
+        const Gq = quad[q];
+        if (!Gq) continue;
+        const add = mm(Et, mm(Gq, E));
+        for (let i = 0; i < Gq.length; i++) Gq[i] += add[i]!;
+      }
+      E = mm(E, E);
+    }
+    for (let q = 0; q < rows.length; q++) {
+      const r = rows[q]!;
+      const Gq = quad[q];
+      if (Gq) {
+        let s = 0;
+        for (let i = 0; i < n; i++) {
+          let row = 0;
+          for (let j = 0; j < n; j++) row += Gq[i * n + j]! * w0[j]!;
+          s += w0[i]! * row;
+        }
+        this.intValues[q]! += s;
+      } else {
+        let s = 0;
+        for (let i = 0; i < n; i++) {
+          let row = 0;
+          for (let j = 0; j < n; j++) row += L[i * n + j]! * w0[j]!;
+          s += r.a[i]! * row;
+        }
+        this.intValues[q]! += s;
+      }
+    }
+  }
+
+  // ----------------------------------------------------------------------------------------
+  // the step
+
+  private fail(err: unknown): void {
+    if (err instanceof SimulationError) {
+      this.error = err;
+      this.finish('failed', err.message);
+    } else if (err instanceof RangeError) {
+      this.error = new SimulationError('controller', err.message, [], this.timeS);
+      this.finish('failed', err.message);
+    } else {
+      const msg = err instanceof Error ? err.message : String(err);
+      this.error = new SimulationError('controller', `controller failed at t = ${this.timeS} s: ${msg}`, [], this.timeS);
+      this.finish('failed', this.error.message);
+    }
+  }
+
+  private finish(status: 'finished' | 'stopped' | 'failed', message: string): void {
+    this.status = status;
+    this.message = message;
+  }
+
+  /**
+   * Advances to the next event instant and handles every event there. Returns the status.
+   */
+  step(): 'running' | 'finished' | 'stopped' | 'failed' {
+    if (this.status !== 'running') return this.status;
+    try {
+      this.stepInner();
+    } catch (err) {
+      this.fail(err);
+    }
+    return this.status;
+  }
+
+  private stepInner(): void {
+    if (this.activeDirty) this.rebuildActive();
+    const qi = this.nextIndex();
+    const c1 = this.qCyc[qi]!, o1 = this.qOff[qi]!;
+    const h = (c1 - this.cyc) * this.tb + (o1 - this.off);
+    const t = this.topo;
+    const w0 = this.w;
+    const w1 = this.w1;
+    let guardTau = -1;
+    let guardIdx = -1;
+    if (h > 0) {
+      this.propagate(t, h, w0, w1);
+      this.counters.segments++;
+      // guard screening
+      const act = this.active;
+      for (let gi = 0; gi < act.length; gi++) {
+        const g = act[gi]!;
+        const f0 = Simulation.dot(g.row, w0), f1 = Simulation.dot(g.row, w1);
+        const d0 = Simulation.dot(g.drow, w0), d1 = Simulation.dot(g.drow, w1);
+        const e4 = Math.max(Math.abs(Simulation.dot(g.d4row, w0)), Math.abs(Simulation.dot(g.d4row, w1)));
+        for (let pass = 0; pass < 2; pass++) {
+          const sign = g.dir !== 0 ? g.dir : pass === 0 ? 1 : -1;
+          if (g.dir !== 0 && pass === 1) break;
+          const sf0 = sign * f0;
+          const sd0 = sign * d0;
+          // just-fired guards sit at zero: count them as already crossed when moving upward
+          const startAbove = sf0 > 0 || (sf0 === 0 && sd0 >= 0) || (Math.abs(sf0) <= 1e-12 * (Math.abs(f1) + 1e-300) && sd0 > 0);
+          const f0n = startAbove ? Math.max(sf0, 0) : sf0;
+          if (!Simulation.maybeRising(f0n, sign * f1, sd0, sign * d1, e4, h)) continue;
+          const limit = guardTau >= 0 ? guardTau : h;
+          const tau = this.locate(t, g, sign, w0, limit, startAbove);
+          if (tau >= 0 && (guardTau < 0 || tau < guardTau)) {
+            guardTau = tau;
+            guardIdx = gi;
+          }
+        }
+      }
+      const tr = this.options.trace;
+      if (guardTau >= 0 && guardTau < h * (1 - 1e-14)) {
+        // guard event inside the segment
+        const tau = guardTau;
+        this.evalAt(t, tau, w0, w1);
+        if (tau > 0) {
+          this.instantCount = 0;
+          this.instantGuards.clear();
+        }
+        tr?.segment?.(t.key, tau, w0);
+        this.accumulate(t, tau, w0);
+        const startT = this.timeS;
+        this.emitGridUpTo(startT, tau, t, w0);
+        this.off += tau;
+        if (this.off >= this.tb) {
+          const k = Math.floor(this.off / this.tb);
+          this.cyc += k;
+          this.off -= k * this.tb;
+        }
+        this.checkFinite(w1, t);
+        this.w.set(w1);
+        this.onInstant();
+        if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
+        this.fireGuard(this.active[guardIdx]!);
+        this.afterEvents(t.key);
+        return;
+      }
+      tr?.segment?.(t.key, h, w0);
+      this.accumulate(t, h, w0);
+      this.emitGridUpTo(this.timeS, h, t, w0);
+      this.checkFinite(w1, t);
+      this.w.set(w1);
+      this.cyc = c1;
+      this.off = o1;
+      this.instantCount = 0;
+      this.instantGuards.clear();
+      if (guardTau >= 0) {
+        // a guard at the segment end: handled together with the scheduled events there
+        this.onInstant();
+        if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
+        this.fireGuard(this.active[guardIdx]!);
+      } else {
+        this.onInstant();
+        if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
+      }
+    } else {
+      this.cyc = c1;
+      this.off = o1;
+      this.onInstant();
+    }
+    // every scheduled event at this instant, in the defined order
+    const before = t.key;
+    for (;;) {
+      if (this.qLen === 0) break;
+      const i = this.nextIndex();
+      if (this.qCyc[i] !== this.cyc || this.qOff[i] !== this.off) break;
+      const kind = this.qKind[i]!;
+      const tag = this.qTag[i]!;
+      // remove
+      const last = --this.qLen;
+      this.qCyc[i] = this.qCyc[last]!;
+      this.qOff[i] = this.qOff[last]!;
+      this.qKind[i] = this.qKind[last]!;
+      this.qTag[i] = this.qTag[last]!;
+      this.qSeq[i] = this.qSeq[last]!;
+      this.counters.events++;
+      if (kind === KIND_STOP) {
+        this.settleAndSwitch(before);
+        this.finish('finished', 'reached the stop time');
+        return;
+      }
+      if (kind === KIND_STEP) {
+        const st = this.stepTimes[tag]!;
+        this.w[this.nx + st.input] = st.value;
+      } else if (this.ctrl) {
+        this.ctrl.onEvent(this.ctx, tag);
+      }
+    }
+    this.afterEvents(before);
+  }
+
+  private onInstant(): void {
+    this.instantCount++;
+    if (this.instantCount > this.maxPerInstant) {
+      const names = [...this.instantGuards];
+      throw new SimulationError(
+        'chattering',
+        `chattering: more than ${this.maxPerInstant} events at t = ${this.timeS} s without time advancing${names.length ? ` (guards: ${names.join(', ')})` : ''}`,
+        names,
+        this.timeS,
+      );
+    }
+  }
+
+  private fireGuard(g: ActiveGuard): void {
+    this.counters.guardEvents++;
+    this.counters.events++;
+    const tr = this.options.trace;
+    if (g.owner < 0) {
+      const d = -g.owner - 1;
+      this.instantGuards.add(this.c.devices[d]!.id);
+      tr?.guard?.({ timeS: this.timeS, before: this.key, row: g.row, which: 'device', index: d });
+      this.key ^= 1 << d;
+    } else {
+      this.instantGuards.add(`controller guard ${g.owner}`);
+      tr?.guard?.({ timeS: this.timeS, before: this.key, row: g.row, which: 'controller', index: g.owner });
+      this.ctrl?.onEvent(this.ctx, this.guardTag[g.owner]!);
+    }
+  }
+
+  private settleAndSwitch(before: number): void {
+    this.settle();
+    this.turnedOff = 0;
+    if (this.key !== this.topo.key) {
+      this.topo = this.model.topology(this.key);
+      this.counters.topologies = this.model.topologyCount;
+      this.activeDirty = true;
+    }
+    if (this.key !== before) this.options.trace?.switched?.(this.timeS, before, this.key, this.w);
+    if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.After);
+  }
+
+  private afterEvents(before: number): void {
+    this.settleAndSwitch(before);
+    if (this.stopRequest !== null) this.finish('stopped', this.stopRequest);
+  }
+
+  private checkFinite(w: Float64Array, t: Topology): void {
+    let s = 0;
+    for (let i = 0; i < this.nx; i++) s += w[i]!;
+    if (!Number.isFinite(s)) {
+      const bad = this.c.stateNames.filter((_, i) => !Number.isFinite(w[i]!));
+      throw new SimulationError(
+        'non-finite',
+        `non-finite state (${bad.join(', ')}) after a segment in topology [${describeKey(this.c, t.key)}] ending at t = ${this.timeS} s`,
+        bad,
+        this.timeS,
+      );
+    }
+  }
+
+  /** Runs to the end and returns the result. */
+  run(): RunResult {
+    while (this.status === 'running') this.step();
+    return this.result();
+  }
+
+  /** The result so far. */
+  result(): RunResult {
+    const ints: Record<string, number> = {};
+    (this.options.integrals ?? []).forEach((s, i) => {
+      ints[s.name] = this.intValues[i]!;
+    });
+    return {
+      status: this.status === 'running' ? 'stopped' : this.status,
+      message: this.message,
+      ...(this.error ? { error: this.error } : {}),
+      timeS: this.timeS,
+      state: new Float64Array(this.w),
+      stateNames: this.c.stateNames,
+      counters: { ...this.counters },
+      integrals: ints,
+      topologyKey: this.key,
+      topology: describeKey(this.c, this.key),
+    };
+  }
+}
+
+/** Runs a circuit to the stop time: a short loop over {@link Simulation.step}. */
+export function simulate(model: CircuitModel | CircuitSpec, options: RunOptions): RunResult {
+  return new Simulation(model, options).run();
+}
