@@ -29,7 +29,10 @@
  * none is passed.
  */
 
-/** theta_m from Higham (2005), Table 2.3: largest 1-norm for which degree m is accurate to unit roundoff. */
+/**
+ * theta_m from Higham (2005): the largest 1-norm for which the backward error bound of the
+ * degree-m approximant is at most the unit roundoff 2^-53.
+ */
 const THETA_3 = 1.495585217958292e-2;
 const THETA_5 = 2.53939833006323e-1;
 const THETA_7 = 9.504178996162932e-1;
