@@ -1,0 +1,5 @@
+/**
+ * edgewise models: converter stages, control laws, loss models and analyses.
+ * @packageDocumentation
+ */
+export * from './stage.ts';
