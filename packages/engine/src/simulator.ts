@@ -1213,7 +1213,7 @@ export class Simulation {
       this.finish('failed', err.message);
     } else {
       const msg = err instanceof Error ? err.message : String(err);
-      this.error = new SimulationError('controller', `controller failed at t = ${this.timeS} s: ${msg}`, [], this.timeS);
+      this.error = new SimulationError('controller', `a controller or sink callback failed at t = ${this.timeS} s: ${msg}`, [], this.timeS);
       this.finish('failed', this.error.message);
     }
   }
