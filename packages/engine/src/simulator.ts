@@ -1278,10 +1278,7 @@ export class Simulation {
         // guard event inside the segment
         const tau = guardTau;
         this.evalAt(t, tau, w0, w1);
-        if (tau > 0) {
-          this.instantCount = 0;
-          this.instantGuards.clear();
-        }
+        const prevCyc = this.cyc, prevOff = this.off;
         tr?.segment?.(t.key, tau, w0);
         this.accumulate(t, tau, w0);
         const startT = this.timeS;
@@ -1291,6 +1288,10 @@ export class Simulation {
           const k = Math.floor(this.off / this.tb);
           this.cyc += k;
           this.off -= k * this.tb;
+        }
+        if (this.cyc !== prevCyc || this.off !== prevOff) {
+          this.instantCount = 0;
+          this.instantGuards.clear();
         }
         this.checkFinite(w1, t);
         this.w.set(w1);

@@ -1,0 +1,79 @@
+import { describe, expect, it } from 'vitest';
+import { simulate, type CircuitSpec, type Controller } from '../src/index.ts';
+
+// LC tank: C dv/dt = -iL, L diL/dt = v, so v(t) = V cos(w t + phi) with w = 1/sqrt(LC)
+// (circuit theory, natural response of an undamped LC circuit; Nilsson and Riedel ch. 8).
+const L = 1e-6, C = 1e-6, w = 1 / Math.sqrt(L * C);
+const phi0 = -0.2 * Math.PI;
+const tank: CircuitSpec = {
+  elements: [
+    { kind: 'capacitor', id: 'C1', a: 'a', b: '0', farads: C, initialVolts: Math.cos(phi0) },
+    { kind: 'inductor', id: 'L1', a: 'a', b: '0', henries: L, initialAmps: C * w * Math.sin(phi0) },
+  ],
+};
+const thr = 0.99;
+// first upward crossing of v = thr: w t + phi0 = -acos(thr)
+const tStar = (-Math.acos(thr) - phi0) / w;
+
+function watcher(times: number[]): Controller {
+  return {
+    start(ctx) {
+      const g = ctx.guard({ signal: 'a', threshold: thr, direction: 'rising' });
+      ctx.arm(g, 7);
+    },
+    onEvent(ctx, tag) {
+      if (tag === 7) times.push(ctx.timeS);
+    },
+  };
+}
+
+describe('guard location', () => {
+  it('catches a double crossing inside one short segment whose ends are both below the threshold', () => {
+    const times: number[] = [];
+    const stop = (0.4 * Math.PI) / w; // v(0) = v(stop) = cos(0.2 pi) = 0.809 < 0.99, peak 1 in between
+    const r = simulate(tank, { stopS: stop, timeBaseS: stop, controller: watcher(times) });
+    expect(r.status).toBe('finished');
+    expect(r.counters.segments).toBeLessThanOrEqual(2);
+    expect(times.length).toBe(1);
+    expect(Math.abs(times[0]! - tStar)).toBeLessThan(1e-12 * stop);
+  });
+
+  it('finds the first crossing when one scheduled interval spans many oscillation periods', () => {
+    const times: number[] = [];
+    const period = (2 * Math.PI) / w;
+    const stop = 10.2 * period;
+    const r = simulate(tank, { stopS: stop, timeBaseS: period, controller: watcher(times) });
+    expect(r.status).toBe('finished');
+    expect(times.length).toBe(11); // one upward crossing per period, the last period included
+    times.forEach((t, k) => expect(Math.abs(t - (tStar + k * period))).toBeLessThan(1e-11 * period));
+  });
+});
+
+describe('drift-free scheduling', () => {
+  it('clock edges land exactly on k * T after 10^6 cycles (cycle index plus offset)', () => {
+    const T = 1e-6;
+    let bad = 0;
+    let edges = 0;
+    const ctrl: Controller = {
+      start(ctx) {
+        ctx.at(0, 0, 0);
+      },
+      onEvent(ctx) {
+        if (ctx.offsetS !== 0 || ctx.cycle !== edges) bad++;
+        edges++;
+        ctx.at(0, ctx.cycle + 1, 0);
+      },
+    };
+    const rc: CircuitSpec = {
+      elements: [
+        { kind: 'voltage-source', id: 'V1', pos: 'in', neg: '0', volts: 1 },
+        { kind: 'resistor', id: 'R1', a: 'in', b: 'o', ohms: 1 },
+        { kind: 'capacitor', id: 'C1', a: 'o', b: '0', farads: 1e-6 },
+      ],
+    };
+    const r = simulate(rc, { stopS: 1e6 * T, timeBaseS: T, controller: ctrl });
+    expect(r.status).toBe('finished');
+    expect(edges).toBe(1e6 + 1); // k = 0 .. 10^6, the last one at the stop time
+    expect(bad).toBe(0);
+  });
+});
