@@ -198,6 +198,7 @@ export class CircuitModel {
   readonly signals: SignalResolver;
   private readonly topos = new Map<number, Topology>();
   private readonly probes = new Map<number, Topology>();
+  private readonly failed = new Map<number, SimulationError>();
   constructor(spec: CircuitSpec | CompiledCircuit) {
     this.circuit = 'branches' in spec ? spec : compileCircuit(spec);
     this.signals = new SignalResolver(this.circuit);
@@ -206,7 +207,15 @@ export class CircuitModel {
   topology(key: number): Topology {
     let t = this.topos.get(key);
     if (t === undefined) {
-      t = buildTopology(this.circuit, this.signals, key);
+      // ill-posed topologies are remembered so that a recurring one costs no rebuild
+      const bad = this.failed.get(key);
+      if (bad !== undefined) throw bad;
+      try {
+        t = buildTopology(this.circuit, this.signals, key);
+      } catch (err) {
+        if (err instanceof SimulationError) this.failed.set(key, err);
+        throw err;
+      }
       this.topos.set(key, t);
     }
     return t;
@@ -841,6 +850,12 @@ export class Simulation {
   // ----------------------------------------------------------------------------------------
   // guard screening and location
 
+  private static dotScale(r: Float64Array, w: Float64Array): number {
+    let s = 0;
+    for (let j = 0; j < r.length; j++) s += Math.abs(r[j]! * w[j]!);
+    return s;
+  }
+
   private static dot(r: Float64Array, w: Float64Array): number {
     let s = 0;
     for (let j = 0; j < r.length; j++) s += r[j]! * w[j]!;
@@ -975,7 +990,19 @@ export class Simulation {
       if (iter > this.maxFlips) {
         throw new SimulationError('inconsistent-switching', `no consistent conduction state found after ${this.maxFlips} device changes at t = ${this.timeS} s (last [${describeKey(c, this.key)}])`, c.devices.map((d) => d.id), this.timeS);
       }
-      const t = this.model.topology(this.key);
+      let t: Topology;
+      try {
+        t = this.model.topology(this.key);
+      } catch (err) {
+        // A conducting diode in a zero-resistance loop closed by a switch (an ideal diode
+        // rectifier when the ideal main switch turns on) commutates off at once; if the loop
+        // forward-biases it instead, the flip back is caught as an inconsistent cycle.
+        const loop = err instanceof SimulationError && err.code === 'shoot-through' ? err.elements : null;
+        const d = loop === null ? -1 : c.devices.findIndex((dev, i) => dev.kind === 'diode' && ((this.key >>> i) & 1) === 1 && loop.includes(dev.id));
+        if (d < 0) throw err;
+        visited = this.flip(d, visited);
+        continue;
+      }
       // inductors with no path
       const held = t.heldInductors;
       let interrupted = -1;
@@ -1262,7 +1289,9 @@ export class Simulation {
           const sf0 = sign * f0;
           const sd0 = sign * d0;
           // just-fired guards sit at zero: count them as already crossed when moving upward
-          const startAbove = sf0 > 0 || (sf0 === 0 && sd0 >= 0) || (Math.abs(sf0) <= 1e-12 * (Math.abs(f1) + 1e-300) && sd0 > 0);
+          // a guard that has just fired sits at zero within the rounding of its own dot product:
+          // count it as already crossed when it moves upward
+          const startAbove = sf0 > 0 || (sf0 === 0 && sd0 >= 0) || (sd0 > 0 && Math.abs(sf0) <= 8e-16 * Simulation.dotScale(g.row, w0));
           const f0n = startAbove ? Math.max(sf0, 0) : sf0;
           if (!Simulation.maybeRising(f0n, sign * f1, sd0, sign * d1, e4, h)) continue;
           const limit = guardTau >= 0 ? guardTau : h;
