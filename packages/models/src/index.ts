@@ -3,3 +3,4 @@
  * @packageDocumentation
  */
 export * from './stage.ts';
+export * from './stages/index.ts';

@@ -21,12 +21,12 @@ export interface StageSignals {
   readonly inputCurrent: string;
   /** Input voltage at the source terminals, volts. */
   readonly inputVoltage: string;
-  /** Load current, amperes. */
+  /** Load current from the output node through the load to ground, amperes (negative for a normal load of the inverting buck-boost). */
   readonly loadCurrent: string;
   /** Main (controlled) switch current and voltage. */
   readonly mainSwitchCurrent: string;
   readonly mainSwitchVoltage: string;
-  /** Rectifier (diode or synchronous switch incl. body diode) current and voltage. */
+  /** Rectifier (diode or synchronous switch incl. body diode) current in its conducting direction, and voltage in its blocking direction (positive while it blocks). */
   readonly rectifierCurrent: string;
   readonly rectifierVoltage: string;
 }
@@ -53,6 +53,12 @@ export interface Stage {
   readonly periodS: number;
   /** Nominal input voltage, volts. */
   readonly inputVolts: number;
+  /**
+   * Gate changes the stage makes by itself at given times (switched load resistors for
+   * resistive load steps). {@link closeLoop} applies them; a controller used without
+   * closeLoop must apply them itself (see {@link withGateSchedule}).
+   */
+  readonly gateSchedule?: readonly { readonly atS: number; readonly gate: string; readonly on: boolean }[];
 }
 
 /** What a control law contributes: extra blocks/measurements in the state, and the event logic. */
@@ -83,7 +89,41 @@ export function closeLoop(stage: Stage, law: ControlLaw): ClosedStage {
       blocks: [...(stage.circuit.blocks ?? []), ...law.blocks],
       measurements: [...(stage.circuit.measurements ?? []), ...law.measurements],
     },
-    createController: law.createController,
+    createController: stage.gateSchedule && stage.gateSchedule.length > 0
+      ? () => withGateSchedule(law.createController(), stage.gateSchedule!)
+      : law.createController,
     timeBaseS: law.timeBaseS,
+  };
+}
+
+/** Timer tags at or below this value are reserved for the stage's gate schedule. */
+const SCHEDULE_TAG_BASE = -1_000_000;
+
+/**
+ * Wraps a controller so that it also applies a stage's gate schedule (timer tags
+ * <= -1e6 are reserved for it; the wrapped controller never sees them).
+ */
+export function withGateSchedule(
+  inner: Controller,
+  schedule: readonly { readonly atS: number; readonly gate: string; readonly on: boolean }[],
+): Controller {
+  let gates: number[] = [];
+  return {
+    start(ctx) {
+      gates = schedule.map((e) => ctx.gate(e.gate));
+      schedule.forEach((e, i) => {
+        const cycle = Math.floor(e.atS / ctx.timeBaseS);
+        ctx.at(SCHEDULE_TAG_BASE - i, cycle, e.atS - cycle * ctx.timeBaseS);
+      });
+      inner.start(ctx);
+    },
+    onEvent(ctx, tag) {
+      if (tag <= SCHEDULE_TAG_BASE) {
+        const i = SCHEDULE_TAG_BASE - tag;
+        ctx.setGate(gates[i]!, schedule[i]!.on);
+        return;
+      }
+      inner.onEvent(ctx, tag);
+    },
   };
 }
