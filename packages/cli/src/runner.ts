@@ -1,0 +1,287 @@
+/**
+ * Runs a plan: streams samples to an optional CSV writer, collects summary metrics over the
+ * window (exact means and RMS from the engine's integrals, extremes from the samples), per-cycle
+ * statistics and thinned waveforms for the report. Memory stays flat for long runs.
+ * @module
+ */
+import { SampleKind, Simulation, type IntegralSpec, type RunCounters, type SampleSink } from '@edgewise/engine';
+import type { CsvWriter } from './csv.ts';
+import { withMark } from './drive.ts';
+import type { Plan } from './scenario/build.ts';
+
+/** Metrics of one signal over the window. */
+export interface SignalMetrics {
+  unit: string;
+  mean: number;
+  rms: number;
+  min: number;
+  max: number;
+  peakToPeak: number;
+  /** Value at the stop time, units of the signal. */
+  final: number;
+}
+
+/** Average power over the window, watts, and energy, joules. */
+export interface PowerMetrics {
+  mean: number;
+  energy: number;
+}
+
+/** Summary of one run (the summary JSON). */
+export interface RunSummary {
+  scenario: string;
+  status: 'finished' | 'stopped' | 'failed';
+  message: string;
+  error?: { code: string; elements: readonly string[]; timeS: number };
+  stopS: number;
+  window: { fromS: number; toS: number };
+  periodS?: number;
+  cycles?: number;
+  averaging: 'exact' | 'samples';
+  signals: Record<string, SignalMetrics>;
+  powers?: Record<string, PowerMetrics>;
+  efficiency?: number;
+  modes?: { ccmCycles: number; dcmCycles: number; lastCycle: 'CCM' | 'DCM' };
+  counters: RunCounters;
+  [extra: string]: unknown;
+}
+
+/** Per-cycle statistics (one entry per period in the window). */
+export interface CycleSeries {
+  startS: number[];
+  mode: ('CCM' | 'DCM')[];
+  mean: number[][];
+  min: number[][];
+  max: number[][];
+}
+
+/** Thinned waveforms kept for plots. */
+export interface Waveforms {
+  t: number[];
+  values: number[][];
+}
+
+/** Options of {@link runPlan}. */
+export interface RunPlanOptions {
+  readonly csv?: CsvWriter;
+  /** Called now and then with the fraction done. */
+  readonly progress?: (fraction: number) => void;
+  /** Keep waveforms and per-cycle data for a report (default false). */
+  readonly keepWaveforms?: boolean;
+  /** Overrides of initial state (e.g. a periodic steady state). */
+  readonly initialState?: Float64Array;
+}
+
+export interface RunOutcome {
+  summary: RunSummary;
+  waveforms?: Waveforms;
+  cycles?: CycleSeries;
+  finalState: Float64Array;
+}
+
+const MAX_WAVE_POINTS = 60_000;
+const MAX_CYCLES_KEPT = 200_000;
+
+/** Runs a plan to its stop time and summarises it. A failed run is an outcome, not a throw. */
+export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
+  const nSig = plan.record.length;
+  const exact = plan.exactAverages;
+  const integrals: IntegralSpec[] = [];
+  if (exact) {
+    plan.record.forEach((s, i) => {
+      integrals.push({ name: `m${i}`, of: s }, { name: `q${i}`, of: s, times: s });
+    });
+  }
+  plan.powers.forEach((p, i) => integrals.push({ name: `p${i}`, of: p.voltage, times: p.current }));
+
+  // Window statistics from the samples.
+  const min = new Float64Array(nSig).fill(Infinity);
+  const max = new Float64Array(nSig).fill(-Infinity);
+  const last = new Float64Array(nSig);
+  const sum = new Float64Array(nSig);
+  const sumSq = new Float64Array(nSig);
+  let prevT = Number.NaN;
+  const prev = new Float64Array(nSig);
+  let any = false;
+
+  // Per-cycle statistics.
+  const T = plan.periodS;
+  const trackCycles = T !== undefined;
+  const held = new Map<number, boolean>();
+  const isHeld = (key: number): boolean => {
+    let h = held.get(key);
+    if (h === undefined) {
+      try {
+        h = plan.model.topology(key).heldInductors.length > 0;
+      } catch {
+        h = false;
+      }
+      held.set(key, h);
+    }
+    return h;
+  };
+  let cycleIndex = -1;
+  let cycleDcm = false;
+  let ccm = 0;
+  let dcm = 0;
+  const keep = options.keepWaveforms === true;
+  const cyc: CycleSeries | undefined = keep && trackCycles ? { startS: [], mode: [], mean: [], min: [], max: [] } : undefined;
+  let cSum = new Float64Array(nSig);
+  let cMin = new Float64Array(nSig).fill(Infinity);
+  let cMax = new Float64Array(nSig).fill(-Infinity);
+  let cStart = 0;
+  const closeCycle = (endS: number): void => {
+    if (cycleIndex < 0) return;
+    if (cycleDcm) dcm++;
+    else ccm++;
+    if (cyc !== undefined && cyc.startS.length < MAX_CYCLES_KEPT) {
+      const span = endS - cStart;
+      cyc.startS.push(cStart);
+      cyc.mode.push(cycleDcm ? 'DCM' : 'CCM');
+      cyc.mean.push(Array.from(cSum, (v) => (span > 0 ? v / span : Number.NaN)));
+      cyc.min.push(Array.from(cMin));
+      cyc.max.push(Array.from(cMax));
+    }
+  };
+
+  // Thinned waveforms: when full, keep every other point and double the stride.
+  const wave: Waveforms | undefined = keep ? { t: [], values: Array.from({ length: nSig }, () => []) } : undefined;
+  let stride = 1;
+  let counter = 0;
+
+  const row = new Float64Array(nSig + 1);
+  const csv = options.csv;
+  const progress = options.progress;
+  let nextProgress = 0;
+  const sink: SampleSink = {
+    sample(timeS, values, key, kind) {
+      if (csv !== undefined) {
+        row[0] = timeS;
+        for (let i = 0; i < nSig; i++) row[i + 1] = values[i]!;
+        csv.row(row, [String(key)]);
+      }
+      if (trackCycles) {
+        // Samples at a clock edge belong to the cycle that starts there (the "after" side).
+        const k = Math.floor((timeS - plan.fromS) / T + (kind === SampleKind.Before ? -1e-9 : 1e-9));
+        if (k !== cycleIndex && timeS < plan.stopS - T * 1e-9) {
+          closeCycle(timeS);
+          cycleIndex = k;
+          cycleDcm = false;
+          cStart = timeS;
+          cSum = new Float64Array(nSig);
+          cMin = new Float64Array(nSig).fill(Infinity);
+          cMax = new Float64Array(nSig).fill(-Infinity);
+        }
+        if (kind !== SampleKind.Before && isHeld(key)) cycleDcm = true;
+      }
+      const dt = any ? timeS - prevT : 0;
+      for (let i = 0; i < nSig; i++) {
+        const v = values[i]!;
+        if (v < min[i]!) min[i] = v;
+        if (v > max[i]!) max[i] = v;
+        if (v < cMin[i]!) cMin[i] = v;
+        if (v > cMax[i]!) cMax[i] = v;
+        if (dt > 0) {
+          const a = prev[i]!;
+          sum[i]! += 0.5 * dt * (a + v);
+          sumSq[i]! += (dt / 3) * (a * a + a * v + v * v); // exact for a linear piece
+          cSum[i]! += 0.5 * dt * (a + v);
+        }
+        prev[i] = v;
+        last[i] = v;
+      }
+      prevT = timeS;
+      any = true;
+      if (wave !== undefined && counter++ % stride === 0) {
+        wave.t.push(timeS);
+        for (let i = 0; i < nSig; i++) wave.values[i]!.push(values[i]!);
+        if (wave.t.length >= MAX_WAVE_POINTS) {
+          wave.t = wave.t.filter((_, j) => j % 2 === 0);
+          wave.values = wave.values.map((v) => v.filter((_, j) => j % 2 === 0));
+          stride *= 2;
+        }
+      }
+      if (progress !== undefined && timeS >= nextProgress) {
+        progress(timeS / plan.stopS);
+        nextProgress = timeS + plan.stopS / 200;
+      }
+    },
+  };
+
+  let atMark: Readonly<Record<string, number>> | undefined;
+  let marked = false;
+  const controller = withMark(plan.createController(), plan.fromS, () => {
+    marked = true;
+  });
+  const sim = new Simulation(plan.model, {
+    stopS: plan.stopS,
+    timeBaseS: plan.timeBaseS,
+    controller,
+    record: plan.record,
+    sink,
+    ...(plan.gridS !== undefined ? { gridS: plan.gridS } : {}),
+    recordFromS: plan.fromS,
+    recordEvents: plan.recordEvents,
+    integrals,
+    ...(options.initialState !== undefined
+      ? { initialState: options.initialState }
+      : plan.initial !== undefined ? { initialState: plan.initial } : {}),
+  });
+  if (marked) atMark = sim.result().integrals;
+  while (sim.status === 'running') {
+    sim.step();
+    if (marked && atMark === undefined) atMark = sim.result().integrals;
+  }
+  const result = sim.result();
+  if (trackCycles) closeCycle(result.timeS);
+  const span = result.timeS - plan.fromS;
+  const ints = result.integrals;
+  const base = atMark ?? {};
+  const windowIntegral = (name: string): number => (ints[name] ?? 0) - (base[name] ?? 0);
+
+  const signals: Record<string, SignalMetrics> = {};
+  plan.record.forEach((s, i) => {
+    const mean = span > 0 ? (exact ? windowIntegral(`m${i}`) : sum[i]!) / span : last[i]!;
+    const ms = span > 0 ? (exact ? windowIntegral(`q${i}`) : sumSq[i]!) / span : last[i]! ** 2;
+    signals[s] = {
+      unit: plan.units[i]!,
+      mean,
+      rms: Math.sqrt(Math.max(0, ms)),
+      min: min[i]!,
+      max: max[i]!,
+      peakToPeak: max[i]! - min[i]!,
+      final: last[i]!,
+    };
+  });
+  const summary: RunSummary = {
+    scenario: plan.name,
+    status: result.status,
+    message: result.message,
+    ...(result.error !== undefined ? { error: { code: result.error.code, elements: result.error.elements, timeS: result.error.timeS } } : {}),
+    stopS: plan.stopS,
+    window: { fromS: plan.fromS, toS: result.timeS },
+    ...(T !== undefined ? { periodS: T, cycles: Math.round(span / T) } : {}),
+    averaging: exact ? 'exact' : 'samples',
+    signals,
+    counters: result.counters,
+  };
+  if (plan.powers.length > 0) {
+    const powers: Record<string, PowerMetrics> = {};
+    plan.powers.forEach((p, i) => {
+      const e = p.gain * windowIntegral(`p${i}`);
+      powers[p.name] = { mean: span > 0 ? e / span : 0, energy: e };
+    });
+    summary.powers = powers;
+    if (plan.efficiency !== undefined) {
+      const total = (names: readonly string[]): number => names.reduce((a, n) => a + powers[n]!.mean, 0);
+      summary.efficiency = total(plan.efficiency.output) / total(plan.efficiency.input);
+    }
+  }
+  if (trackCycles && ccm + dcm > 0) summary.modes = { ccmCycles: ccm, dcmCycles: dcm, lastCycle: cycleDcm ? 'DCM' : 'CCM' };
+  return {
+    summary,
+    ...(wave !== undefined ? { waveforms: wave } : {}),
+    ...(cyc !== undefined ? { cycles: cyc } : {}),
+    finalState: result.state,
+  };
+}
