@@ -1,7 +1,8 @@
 /**
- * Commands beyond run/check/schema/demo (steady, compare, sweep, merge).
+ * Commands beyond run/check/schema/demo.
  * @module
  */
 import type { Command } from './common.ts';
+import { mergeCommand, sweepCommand } from './sweep.ts';
 
-export const extraCommands: readonly Command[] = [];
+export const extraCommands: readonly Command[] = [sweepCommand, mergeCommand];
