@@ -1,0 +1,17 @@
+/**
+ * Analyses of switching systems: periodic steady state by shooting with Floquet multipliers,
+ * per-cycle metrics, averaged models, frequency responses, efficiency and the validation report.
+ */
+export type { Chain, ChainInstant, ChainSegment, InstantTiming, Section, SwitchingSystem } from './trace.ts';
+export { traceCycle } from './trace.ts';
+export type {
+  CycleJacobian,
+  FloquetMultiplier,
+  OrbitStability,
+  ShootingOptions,
+  SteadyState,
+  SteadyStateFailure,
+  SteadyStateResult,
+} from './shooting.ts';
+export { chainJacobian, floquetMultipliers, periodicSteadyState } from './shooting.ts';
+export type { Complex } from './linalg.ts';
