@@ -298,6 +298,7 @@ export class Simulation {
   private readonly gateMask: Int32Array;
   private readonly gateOn: Uint8Array;
   private readonly channelMask: number;
+  private readonly diodeCount: number;
   private turnedOff = 0;
   // guards
   private readonly guardRefs: LinearRef[] = [];
@@ -307,6 +308,8 @@ export class Simulation {
   private guardTag: Float64Array = new Float64Array(0);
   private active: ActiveGuard[] = [];
   private activeDirty = true;
+  private armVersion = 0;
+  private readonly activeCache = new Map<number, { version: number; list: ActiveGuard[] }>();
   private readonly deviceGuards = new Map<number, ActiveGuard[]>();
   // recording
   private readonly recRefs: LinearRef[];
@@ -372,6 +375,7 @@ export class Simulation {
       }
     });
     this.channelMask = cm;
+    this.diodeCount = c.devices.filter((d) => d.kind === 'diode').length;
 
     const rec = options.record ?? [];
     this.recRefs = rec.map((name) => this.resolveOrThrow(name, 'record'));
@@ -627,12 +631,14 @@ export class Simulation {
           sim.guardArmed[g] = 1;
           sim.guardTag[g] = tag;
           sim.activeDirty = true;
+          sim.armVersion++;
         }
       },
       disarm(g) {
         if (sim.guardArmed[g] === 1) {
           sim.guardArmed[g] = 0;
           sim.activeDirty = true;
+          sim.armVersion++;
         }
       },
       block(id) {
@@ -672,6 +678,12 @@ export class Simulation {
 
   private rebuildActive(): void {
     const t = this.topo;
+    const hit = this.activeCache.get(t.key);
+    if (hit !== undefined && hit.version === this.armVersion) {
+      this.active = hit.list;
+      this.activeDirty = false;
+      return;
+    }
     let dg = this.deviceGuards.get(t.key);
     if (dg === undefined) {
       dg = [];
@@ -715,6 +727,7 @@ export class Simulation {
     }
     this.active = act;
     this.activeDirty = false;
+    this.activeCache.set(t.key, { version: this.armVersion, list: act });
   }
 
   // ----------------------------------------------------------------------------------------
@@ -1005,6 +1018,7 @@ export class Simulation {
       }
       // inductors with no path
       const held = t.heldInductors;
+      if (held.length === 0 && this.diodeCount === 0) return;
       let interrupted = -1;
       for (let i = 0; i < held.length; i++) {
         const s = held[i]!;
@@ -1320,10 +1334,10 @@ export class Simulation {
         }
         if (this.cyc !== prevCyc || this.off !== prevOff) {
           this.instantCount = 0;
-          this.instantGuards.clear();
+          if (this.instantGuards.size > 0) this.instantGuards.clear();
         }
         this.checkFinite(w1, t);
-        this.w.set(w1);
+        for (let j = 0; j < this.n; j++) w0[j] = w1[j]!;
         this.onInstant();
         if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
         this.fireGuard(this.active[guardIdx]!);
@@ -1334,11 +1348,11 @@ export class Simulation {
       this.accumulate(t, h, w0);
       this.emitGridUpTo(this.timeS, h, t, w0);
       this.checkFinite(w1, t);
-      this.w.set(w1);
+      for (let j = 0; j < this.nx; j++) w0[j] = w1[j]!;
       this.cyc = c1;
       this.off = o1;
       this.instantCount = 0;
-      this.instantGuards.clear();
+      if (this.instantGuards.size > 0) this.instantGuards.clear();
       if (guardTau >= 0) {
         // a guard at the segment end: handled together with the scheduled events there
         this.onInstant();
