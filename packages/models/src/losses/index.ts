@@ -1,0 +1,11 @@
+export { LossAccountant } from './accountant.ts';
+export type { SwitchingEnergy } from './accountant.ts';
+export { analyzeLosses } from './analyze.ts';
+export type { ConductionLoss, ConductionPart, LossAnalysisOptions, LossReport, SwitchingLoss } from './analyze.ts';
+export {
+  interpolateEnergyJ,
+  overlapTurnOffJ,
+  overlapTurnOnJ,
+  validateSwitchingLossModels,
+} from './switching.ts';
+export type { DiodeLossParams, SwitchLossParams, SwitchingLossModels, TransitionModel } from './switching.ts';
