@@ -31,3 +31,4 @@ export type { DigitalControlParams, DigitalMeasure, DigitalSample, DigitalValues
 export { SwitchDriver } from './control/switch-driver.ts';
 export type { DriveOptions } from './control/switch-driver.ts';
 export * from './losses/index.ts';
+export * from './analyses/index.ts';
