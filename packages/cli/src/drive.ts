@@ -88,7 +88,7 @@ export function createPwmDrive(s: PwmDriveSettings): Controller {
  * `onMark` there: the summary window then starts exactly at an event instant.
  */
 export function withMark(inner: Controller | undefined, markS: number, onMark: () => void): Controller {
-  const TAG = -7_000_001; // outside the tags controllers use (they count up from small numbers)
+  const TAG = 2 ** 50 + 7; // far above the tags controllers use (small counts; the stage schedule uses <= -1e6)
   return {
     start(ctx) {
       inner?.start(ctx);

@@ -42,6 +42,8 @@ export interface RunSummary {
   powers?: Record<string, PowerMetrics>;
   efficiency?: number;
   modes?: { ccmCycles: number; dcmCycles: number; lastCycle: 'CCM' | 'DCM' };
+  /** Turn-ons of the main switch in the window and the mean switching frequency between the first and last. */
+  switching?: { turnOns: number; frequencyHz: number };
   counters: RunCounters;
   [extra: string]: unknown;
 }
@@ -149,6 +151,20 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
   let stride = 1;
   let counter = 0;
 
+  // Turn-ons of the main switch, from the device bits of the topology keys.
+  let mainMask = 0;
+  if (plan.mainGate !== undefined) {
+    const c = plan.model.circuit;
+    const g = c.gates.indexOf(plan.mainGate);
+    c.devices.forEach((d, i) => {
+      if (d.kind === 'channel' && d.gate === g) mainMask |= 1 << i;
+    });
+  }
+  let lastKey = -1;
+  let turnOns = 0;
+  let firstOn = Number.NaN;
+  let lastOn = Number.NaN;
+
   const row = new Float64Array(nSig + 1);
   const csv = options.csv;
   const progress = options.progress;
@@ -173,6 +189,14 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
           cMax = new Float64Array(nSig).fill(-Infinity);
         }
         if (kind !== SampleKind.Before && isHeld(key)) cycleDcm = true;
+      }
+      if (mainMask !== 0) {
+        if (lastKey >= 0 && (key & mainMask) !== 0 && (lastKey & mainMask) === 0) {
+          turnOns++;
+          if (turnOns === 1) firstOn = timeS;
+          lastOn = timeS;
+        }
+        lastKey = key;
       }
       const dt = any ? timeS - prevT : 0;
       for (let i = 0; i < nSig; i++) {
@@ -277,6 +301,7 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
       summary.efficiency = total(plan.efficiency.output) / total(plan.efficiency.input);
     }
   }
+  if (mainMask !== 0) summary.switching = { turnOns, frequencyHz: turnOns > 1 ? (turnOns - 1) / (lastOn - firstOn) : 0 };
   if (trackCycles && ccm + dcm > 0) summary.modes = { ccmCycles: ccm, dcmCycles: dcm, lastCycle: cycleDcm ? 'DCM' : 'CCM' };
   return {
     summary,

@@ -3,6 +3,7 @@
  * @module
  */
 import type { Command } from './common.ts';
+import { steadyCommand } from './steady.ts';
 import { mergeCommand, sweepCommand } from './sweep.ts';
 
-export const extraCommands: readonly Command[] = [sweepCommand, mergeCommand];
+export const extraCommands: readonly Command[] = [steadyCommand, sweepCommand, mergeCommand];

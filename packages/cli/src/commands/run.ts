@@ -41,7 +41,12 @@ export function failIfFailed(outcome: RunOutcome): void {
 }
 
 /** Runs a plan and writes its outputs atomically; returns the outcome. */
-export async function executeRun(plan: Plan, targets: RunTargets, quiet: boolean): Promise<RunOutcome> {
+export async function executeRun(
+  plan: Plan,
+  targets: RunTargets,
+  quiet: boolean,
+  more: { readonly initialState?: Float64Array; readonly extra?: Record<string, unknown> } = {},
+): Promise<RunOutcome> {
   const columns = csvColumns(plan);
   if (targets.csv !== undefined && targets.csv !== '-') ensureDir(targets.csv);
   const csv: CsvWriter | undefined =
@@ -53,7 +58,9 @@ export async function executeRun(plan: Plan, targets: RunTargets, quiet: boolean
       ...(csv !== undefined ? { csv } : {}),
       ...(progress !== undefined ? { progress: (f: number) => progress.update(f) } : {}),
       keepWaveforms: targets.report !== undefined,
+      ...(more.initialState !== undefined ? { initialState: more.initialState } : {}),
     });
+    if (more.extra !== undefined) Object.assign(outcome.summary, more.extra);
     progress?.done();
     failIfFailed(outcome);
   } catch (err) {

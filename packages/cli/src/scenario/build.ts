@@ -40,6 +40,8 @@ export interface Plan {
   readonly initial: Readonly<Record<string, number>> | undefined;
   readonly powers: readonly PowerSpec[];
   readonly efficiency: { readonly input: readonly string[]; readonly output: readonly string[] } | undefined;
+  /** Gate of the main switch (for the switching frequency), when known. */
+  readonly mainGate: string | undefined;
   /** The stage and its parameters, for stage plants (analyses need them). */
   readonly stage: Stage | undefined;
   readonly scenario: Scenario;
@@ -181,6 +183,7 @@ export function buildPlan(scenario: Scenario, where: string): Plan {
     initial: run.initial,
     powers,
     efficiency: run.efficiency,
+    mainGate: stage !== undefined ? stage.gates.main : plant.kind === 'circuit' ? plant.drive?.main : undefined,
     stage,
     scenario,
   };

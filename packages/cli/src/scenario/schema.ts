@@ -178,7 +178,7 @@ export const sweepSchema = z.strictObject({
 
 export const expectSchema = z.strictObject({
   path: z.string().min(1).meta({ description: 'summary path, e.g. "signals.out.mean"' }),
-  value: z.number(),
+  value: z.union([z.number(), z.string(), z.boolean()]),
   rtol: z.number().min(0).optional(),
   atol: z.number().min(0).optional(),
   source: z.string().min(1).meta({ description: 'published source of the expected value' }),
