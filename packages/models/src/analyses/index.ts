@@ -15,3 +15,13 @@ export type {
 } from './shooting.ts';
 export { chainJacobian, floquetMultipliers, periodicSteadyState } from './shooting.ts';
 export type { Complex } from './linalg.ts';
+export type {
+  ConductionMode,
+  CycleBoundaries,
+  CycleMetrics,
+  CycleMetricsOptions,
+  CycleReport,
+  SignalCycleMetrics,
+  StepFigures,
+} from './cycles.ts';
+export { AUDIO_BAND_HZ, measureCycles, stepFigures } from './cycles.ts';

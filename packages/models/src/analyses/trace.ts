@@ -114,6 +114,8 @@ export class TimingController implements Controller {
   onOwnTimer: ((ctx: ControlContext) => void) | null = null;
   gateEdge: ((gate: number, on: boolean, timeS: number) => void) | null = null;
   sectionGateName: string | null = null;
+  /** called at the start with the engine's context (before the inner controller starts) */
+  onStart: ((ctx: ControlContext) => void) | null = null;
 
   constructor(private readonly inner: Controller) {}
 
@@ -170,6 +172,7 @@ export class TimingController implements Controller {
     this.proxy = this.wrap(ctx);
     if (this.sectionGateName !== null) this.sectionGate = ctx.gate(this.sectionGateName);
     this.inStart = true;
+    this.onStart?.(ctx);
     try {
       this.inner.start(this.proxy);
     } finally {
