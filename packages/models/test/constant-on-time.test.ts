@@ -137,6 +137,29 @@ describe('constant on-time', () => {
     }
   });
 
+  it('regulates with current or ramp ripple injection', () => {
+    // a nearly ESR-free output capacitor: the injected ripple provides the valley signal
+    const stage = buck({ outputCapacitor: { farads: 100e-6, esrOhms: 0.001 }, load: { kind: 'resistor', ohms: 1 }, initial: { outputVolts: 3.3, inductorAmps: 3.3 } });
+    const rInj = 0.02;
+    const cur = observe(closeLoop(stage, constantOnTime(stage, { ...base, rippleInjection: { kind: 'current', ohms: rInj }, diodeEmulation: false })), 0.3e-3, 0.5e-3);
+    // first order (common practice): turn-on happens when vo + Rinj iL falls to the reference at
+    // the current valley, Io - dI/2, so the output sits ~ Rinj (Io - dI/2) below it
+    // (dI = (Vin - Vo) ton / L = 0.93 A): within the capacitive ripple, 5 mV
+    const dI = ((VIN - 3.3) * 0.5e-6) / 4.7e-6;
+    expect(Math.abs(cur.meanVout - (3.3 - rInj * (cur.meanVout / 1 - dI / 2)))).toBeLessThan(5e-3);
+    expect(frequency(cur.ons) / (cur.meanVout / (VIN * 0.5e-6))).toBeCloseTo(1, 2);
+    const ramp = observe(closeLoop(stage, constantOnTime(stage, { ...base, rippleInjection: { kind: 'ramp', voltsPerS: 20e3 }, diodeEmulation: false })), 0.3e-3, 0.5e-3);
+    // common practice: CCM frequency D / ton whatever the valley signal
+    expect(frequency(ramp.ons) / (ramp.meanVout / (VIN * 0.5e-6))).toBeCloseTo(1, 2);
+    // a fact of the law: at each turn-on vo - slope toff = reference, so the output sits above
+    // the reference by slope toff plus at most its capacitive ripple dI T / (8 C) (~2 mV)
+    const period = 1 / frequency(ramp.ons);
+    const lift = 20e3 * (period - 0.5e-6);
+    const ripple = (dI * period) / (8 * 100e-6);
+    expect(ramp.meanVout - 3.3).toBeGreaterThan(lift - ripple);
+    expect(ramp.meanVout - 3.3).toBeLessThan(lift + ripple);
+  });
+
   it('rejects bad parameters naming each one', () => {
     const stage = buck({ load: { kind: 'resistor', ohms: 1 } });
     expect(() => constantOnTime(stage, { referenceVolts: Number.NaN, onTime: { kind: 'fixed', seconds: -1 }, minOffTimeS: 0 })).toThrow(

@@ -122,6 +122,21 @@ describe('sampled digital control', () => {
     times.forEach((t, k) => expect(t).toBeCloseTo(3 * k * T + 0.25 * T, 18));
   });
 
+  it('ends the on-time at the current limit for the rest of the period', () => {
+    const st = buck();
+    const law = digitalControl(st, { measure: [], compute: () => 0.9, delaySamples: 0, currentLimit: { peakAmps: 3 } });
+    const closed = closeLoop(st, law);
+    let imax = -Infinity;
+    const r = simulate(closed.circuit, {
+      stopS: 40 * T, timeBaseS: closed.timeBaseS, controller: closed.createController(), record: [st.signals.inductorCurrent],
+      sink: { sample: (_t, v) => { imax = Math.max(imax, v[0]!); } },
+    });
+    expect(r.status).toBe('finished');
+    // a fact of the law: the guard opens the switch exactly at the limit
+    expect(imax).toBeLessThanOrEqual(3 + 1e-9);
+    expect(imax).toBeGreaterThan(2.99);
+  });
+
   it('fails the run naming the sample when compute returns NaN or a value outside [0, 1]', () => {
     const st = buck();
     for (const [bad, text] of [[Number.NaN, 'NaN'], [1.5, '1.5'], [-0.2, '-0.2']] as const) {
