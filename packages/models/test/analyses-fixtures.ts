@@ -224,3 +224,17 @@ export function buckCot(p: CotParams = {}): SwitchingSystem & { circuit: Circuit
     timeBaseS: p.periodS ?? 10e-6,
   };
 }
+
+/** Boost with a diode under voltage-mode trailing-edge PWM from a control source VC against a 1 V ramp: D = vc. */
+export function boostVm(p: BoostParams & { vc?: number } = {}): SwitchingSystem & { circuit: CircuitSpec } {
+  const T = p.periodS ?? 10e-6;
+  const base = boostOpenLoop(p);
+  return {
+    circuit: {
+      elements: [...base.circuit.elements, { kind: 'voltage-source', id: 'VC', pos: 'vc', neg: '0', volts: p.vc ?? 0.5 }],
+      blocks: [{ kind: 'ramp', id: 'RAMP', slopePerS: 1 / T }],
+    },
+    createController: comparatorPwm({ gate: 'g', ramp: 'RAMP', terms: [{ signal: 'RAMP.out', gain: 1 }, { signal: 'vc', gain: -1 }], threshold: 0, periodS: T }),
+    timeBaseS: T,
+  };
+}

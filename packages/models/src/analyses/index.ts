@@ -25,3 +25,14 @@ export type {
   StepFigures,
 } from './cycles.ts';
 export { AUDIO_BAND_HZ, measureCycles, stepFigures } from './cycles.ts';
+export type {
+  CcmAveragedModel,
+  CcmAveragingOptions,
+  ResponsePoint,
+  StateSpace,
+  TransferFunction,
+  UserAveragedModel,
+} from './averaging.ts';
+export { ccmAveragedModel, evaluateStateSpace, frequencyResponseOf, topologyKeyOf, userTransferFunction } from './averaging.ts';
+export type { SineInjectionOptions } from './frequency-response.ts';
+export { sampledDataResponse, sineInjectionResponse, switchingFrequencyResponse } from './frequency-response.ts';
