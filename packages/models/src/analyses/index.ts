@@ -36,3 +36,5 @@ export type {
 export { ccmAveragedModel, evaluateStateSpace, frequencyResponseOf, topologyKeyOf, userTransferFunction } from './averaging.ts';
 export type { SineInjectionOptions } from './frequency-response.ts';
 export { sampledDataResponse, sineInjectionResponse, switchingFrequencyResponse } from './frequency-response.ts';
+export type { EfficiencyOptions, EfficiencyPoint, EfficiencyReport } from './efficiency.ts';
+export { efficiencySweep, steadyStateEfficiency } from './efficiency.ts';
