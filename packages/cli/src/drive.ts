@@ -45,6 +45,8 @@ export function createPwmDrive(s: PwmDriveSettings): Controller {
     const d = dutyAt(cycle);
     const on = d * s.periodS;
     ctx.at(CYCLE, cycle + 1, 0);
+    // Break before make: the complement is off before the main gate turns on at the same instant.
+    if (comp >= 0) ctx.setGate(comp, false);
     if (on > 0) ctx.setGate(main, true);
     if (d < 1) {
       if (on > 0) ctx.at(MAIN_OFF, cycle, on);
@@ -53,7 +55,7 @@ export function createPwmDrive(s: PwmDriveSettings): Controller {
         if (on + td < s.periodS - td) {
           if (on + td > 0) ctx.at(COMP_ON, cycle, on + td);
           else ctx.setGate(comp, true);
-          ctx.at(COMP_OFF, cycle, s.periodS - td);
+          if (td > 0) ctx.at(COMP_OFF, cycle, s.periodS - td);
         }
       }
     }
