@@ -181,13 +181,13 @@ const FACT_INV: Float64Array = (() => {
   return f;
 })();
 
-/** Number of Taylor terms giving < 1e-17 truncation for rho = ||A|| h. */
+/** Number of Taylor terms giving a truncation below 2e-17 (relative) for rho = ||A|| h <= 1. */
 function taylorOrder(rho: number): number {
   if (rho === 0) return 1;
   let term = 1;
   for (let k = 1; k <= TAYLOR_MAX; k++) {
     term *= rho / k;
-    if (term < 1e-18 && k >= 2) return k;
+    if (term < 2e-17 && k >= 2) return k;
   }
   return TAYLOR_MAX;
 }
@@ -305,6 +305,9 @@ export class Simulation {
   private readonly diodeCount: number;
   /** topologies by key for circuits with at most 16 devices (a direct index beats a Map lookup) */
   private readonly topoTable: (Topology | undefined)[] | null;
+  /** active guard list by topology key and the arm key it was built for (same size limit) */
+  private readonly activeDense: (ActiveGuard[] | undefined)[] | null;
+  private readonly activeDenseArm: Float64Array;
   private turnedOff = 0;
   // guards
   private readonly guardRefs: LinearRef[] = [];
@@ -388,6 +391,8 @@ export class Simulation {
     this.channelMask = cm;
     this.diodeCount = c.devices.filter((d) => d.kind === 'diode').length;
     this.topoTable = c.devices.length <= 16 ? new Array<Topology | undefined>(1 << c.devices.length).fill(undefined) : null;
+    this.activeDense = c.devices.length <= 16 ? new Array<ActiveGuard[] | undefined>(1 << c.devices.length).fill(undefined) : null;
+    this.activeDenseArm = new Float64Array(this.activeDense === null ? 0 : 1 << c.devices.length).fill(-1);
 
     const rec = options.record ?? [];
     this.recRefs = rec.map((name) => this.resolveOrThrow(name, 'record'));
@@ -580,14 +585,17 @@ export class Simulation {
         return signals.length - 1;
       }
       read(h: number): number {
-        let rows = rowCache.get(sim.key);
+        // the topology in force just before the event (gates set at this event are not yet
+        // settled, and the raw key may even be ill-posed until consistent switching runs)
+        const key = sim.topo !== undefined ? sim.topo.key : sim.key;
+        let rows = rowCache.get(key);
         if (rows === undefined) {
           rows = [];
-          rowCache.set(sim.key, rows);
+          rowCache.set(key, rows);
         }
         let r = rows[h];
         if (r === undefined) {
-          const t = sim.model.topology(sim.key);
+          const t = sim.model.topology(key);
           r = rows[h] = t.row(signals[h]!);
         }
         let s = 0;
@@ -704,6 +712,12 @@ export class Simulation {
 
   private rebuildActive(): void {
     const t = this.topo;
+    const dense = this.activeDense;
+    if (dense !== null && this.activeDenseArm[t.key] === this.armKey) {
+      this.active = dense[t.key]!;
+      this.activeDirty = false;
+      return;
+    }
     let perTopo = this.activeCache.get(t.key);
     if (perTopo === undefined) {
       perTopo = new Map();
@@ -713,6 +727,10 @@ export class Simulation {
     if (hit !== undefined) {
       this.active = hit;
       this.activeDirty = false;
+      if (dense !== null) {
+        dense[t.key] = hit;
+        this.activeDenseArm[t.key] = this.armKey;
+      }
       return;
     }
     let dg = this.deviceGuards.get(t.key);
@@ -760,6 +778,10 @@ export class Simulation {
     this.activeDirty = false;
     if (perTopo.size > 64) perTopo.clear();
     perTopo.set(this.armKey, act);
+    if (dense !== null) {
+      dense[t.key] = act;
+      this.activeDenseArm[t.key] = this.armKey;
+    }
   }
 
   // ----------------------------------------------------------------------------------------
@@ -784,7 +806,18 @@ export class Simulation {
     } else {
       this.counters.propagatorCacheMisses++;
       const rho = t.normA * h;
-      const room = this.useCache && t.cache.size < this.maxCached;
+      // A duration is cached the second time it is seen: fixed-frequency operation repeats its
+      // durations every cycle, while event-terminated ones (DCM, comparators) rarely repeat and
+      // are cheaper by the Taylor series (or the split below) than by a fresh exponential.
+      let repeat = false;
+      if (this.useCache) {
+        repeat = t.seenOnce.has(h);
+        if (!repeat) {
+          if (t.seenOnce.size >= 4 * this.maxCached) t.seenOnce.clear();
+          t.seenOnce.add(h);
+        }
+      }
+      const room = this.useCache && repeat && t.cache.size < this.maxCached;
       if (!room && rho <= 1) {
         this.taylor(t, h, w0, out, 0);
         this.counters.taylorSegments++;
@@ -995,7 +1028,7 @@ export class Simulation {
             else hi = x;
             let xn = dx !== 0 ? x - fx / dx : 0.5 * (lo + hi);
             if (!(xn > lo && xn < hi)) xn = 0.5 * (lo + hi);
-            const done = Math.abs(xn - x) <= 4e-16 * Math.max(1, x) || hi - lo <= 4e-16;
+            const done = Math.abs(xn - x) <= 1e-15 * xn || hi - lo <= 1e-15 * hi;
             x = xn;
             if (done) break;
           }
@@ -1035,6 +1068,24 @@ export class Simulation {
         // A conducting diode in a zero-resistance loop closed by a switch (an ideal diode
         // rectifier when the ideal main switch turns on) commutates off at once; if the loop
         // forward-biases it instead, the flip back is caught as an inconsistent cycle.
+        // A current source whose only path runs through an off diode: the diode the probe
+        // network forward-biases most takes the current, as for an interrupted inductor.
+        if (err instanceof SimulationError && err.code === 'floating-current-source') {
+          const p = this.model.probe(this.key);
+          let best = -1, bestV = this.vTol;
+          for (let d = 0; d < c.devices.length; d++) {
+            const dev = c.devices[d]!;
+            if (dev.kind !== 'diode' || (this.key >>> d) & 1) continue;
+            const v = Simulation.dot(p.deviceVoltage[d]!, w) - c.branches[dev.branch]!.forwardVolts;
+            if (v > bestV) {
+              bestV = v;
+              best = d;
+            }
+          }
+          if (best < 0) throw new SimulationError(err.code, `${err.message} at t = ${this.timeS} s (no diode can take its current)`, err.elements, this.timeS);
+          visited = this.flip(best, visited);
+          continue;
+        }
         const loop = err instanceof SimulationError && err.code === 'shoot-through' ? err.elements : null;
         const d = loop === null ? -1 : c.devices.findIndex((dev, i) => dev.kind === 'diode' && ((this.key >>> i) & 1) === 1 && loop.includes(dev.id));
         if (d < 0) throw err;
@@ -1500,7 +1551,7 @@ export class Simulation {
   }
 
   private settleAndSwitch(before: number): void {
-    this.settle();
+    if (this.diodeCount !== 0 || this.lookupTopology(this.key).heldInductors.length !== 0) this.settle();
     this.turnedOff = 0;
     if (this.key !== this.topo.key) {
       this.topo = this.lookupTopology(this.key);

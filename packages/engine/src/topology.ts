@@ -51,6 +51,8 @@ export class Topology {
   private readonly N: number;
   /** propagator cache: duration -> top nx rows of expm(M h) */
   readonly cache = new Map<number, Float64Array>();
+  /** durations seen once (a second sighting caches their propagator) */
+  readonly seenOnce = new Set<number>();
   lastH = Number.NaN;
   lastE: Float64Array | null = null;
   /** per-guard rows (value and derivative), filled lazily by the simulator */

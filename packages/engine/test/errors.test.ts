@@ -128,3 +128,25 @@ describe('ill-posed topologies stop the run with a named error', () => {
     expect(() => simulate(buck(), { stopS: 1, record: ['nope'] })).toThrowError(/record: unknown signal "nope"; known signals: in, sw, out/);
   });
 });
+
+describe('current sources and diodes', () => {
+  const circuit = (forward: boolean): CircuitSpec => ({
+    elements: [
+      { kind: 'current-source', id: 'I1', from: '0', to: 'a', amps: 1 },
+      { kind: 'diode', id: 'D1', anode: forward ? 'a' : 'b', cathode: forward ? 'b' : 'a', forwardVolts: 0.5 },
+      { kind: 'resistor', id: 'R1', a: 'b', b: '0', ohms: 10 },
+    ],
+  });
+  it('a current source whose only path is an off diode turns the diode on: v = Vf + I R (Ohm\'s law)', () => {
+    const r = simulate(circuit(true), { stopS: 1e-3, integrals: [{ name: 'v', of: 'a' }] });
+    expect(r.status).toBe('finished');
+    expect(r.topology).toBe('D1=on');
+    expect(r.integrals.v! / 1e-3).toBeCloseTo(10.5, 12);
+  });
+  it('with the diode reversed the source has no path: a named error, not a crash', () => {
+    const r = simulate(circuit(false), { stopS: 1e-3 });
+    expect(r.status).toBe('failed');
+    expect(r.error?.code).toBe('floating-current-source');
+    expect(r.message).toBe('current source I1 has no path in topology [D1=off] at t = 0 s (no diode can take its current)');
+  });
+});

@@ -1,0 +1,132 @@
+// Engine benchmark: run with `pnpm bench` (node --expose-gc --import tsx). Prints throughput
+// and ratios measured side by side in this one run. Not a test: nothing here asserts.
+import { CircuitModel, Simulation, simulate, type SampleSink } from '../src/index.ts';
+import { odexRun } from './odex-equations.ts';
+import { DUTY, PERIOD_S, SCENARIOS, openLoop } from './scenarios.ts';
+
+type Key = keyof typeof SCENARIOS;
+const keys: Key[] = ['S1', 'S2', 'S3'];
+const targets: Record<Key, number> = { S1: 1e7, S2: 5e6, S3: 1e6 };
+const fmt = (x: number): string => x.toExponential(2);
+
+function engineRate(k: Key, cycles: number): number {
+  const s = SCENARIOS[k];
+  const model = new CircuitModel(s.circuit);
+  simulate(model, { stopS: 20_000 * PERIOD_S, timeBaseS: PERIOD_S, controller: openLoop(s.sync) }); // warm-up
+  let best = 0;
+  for (let rep = 0; rep < 3; rep++) {
+    const t0 = performance.now();
+    const r = simulate(model, { stopS: cycles * PERIOD_S, timeBaseS: PERIOD_S, controller: openLoop(s.sync) });
+    const dt = (performance.now() - t0) / 1000;
+    if (r.status !== 'finished') throw new Error(`${k}: ${r.message}`);
+    best = Math.max(best, cycles / dt);
+  }
+  return best;
+}
+
+/** A bare loop of the two cached propagators of S1: the ceiling of this machine for S1. */
+function bareLoopRate(cycles: number): number {
+  const model = new CircuitModel(SCENARIOS.S1.circuit);
+  const on = model.topology(1), off = model.topology(2);
+  const E1 = on.computeE(DUTY * PERIOD_S), E2 = off.computeE((1 - DUTY) * PERIOD_S);
+  const nx = model.circuit.nx, n = nx + model.circuit.nu;
+  const w = new Float64Array(model.circuit.initialState), w1 = new Float64Array(n);
+  const mv = (E: Float64Array, a: Float64Array, b: Float64Array): void => {
+    for (let i = 0; i < nx; i++) {
+      let s = 0;
+      for (let j = 0; j < n; j++) s += E[i * n + j]! * a[j]!;
+      b[i] = s;
+    }
+    for (let j = nx; j < n; j++) b[j] = a[j]!;
+  };
+  let best = 0;
+  for (let rep = 0; rep < 3; rep++) {
+    const t0 = performance.now();
+    for (let k = 0; k < cycles; k++) {
+      mv(E1, w, w1);
+      mv(E2, w1, w);
+    }
+    best = Math.max(best, cycles / ((performance.now() - t0) / 1000));
+  }
+  return best;
+}
+
+function relErr(a: ArrayLike<number>, b: ArrayLike<number>): number {
+  let num = 0, den = 0;
+  for (let i = 0; i < a.length; i++) {
+    num = Math.max(num, Math.abs(a[i]! - b[i]!));
+    den = Math.max(den, Math.abs(b[i]!));
+  }
+  return num / den;
+}
+
+function versusOdex(k: Key, cycles: number): string {
+  const s = SCENARIOS[k];
+  const model = new CircuitModel(s.circuit);
+  const run = () => simulate(model, { stopS: cycles * PERIOD_S, timeBaseS: PERIOD_S, controller: openLoop(s.sync) });
+  run();
+  let t0 = performance.now();
+  const reps = 5;
+  let r = run();
+  for (let i = 1; i < reps; i++) r = run();
+  const tEngine = (performance.now() - t0) / reps;
+  const xe = Array.from(r.state.slice(0, model.circuit.nx));
+  // odex state order: S2 = [LF, CF, L1, C1]; S1/S3 = [L1, C1]. Engine state names give the same order here.
+  const names = model.circuit.stateNames;
+  const order = k === 'S2' ? ['LF.current', 'CF.charge', 'L1.current', 'C1.charge'] : ['L1.current', 'C1.charge'];
+  const engine = order.map((nm) => xe[names.indexOf(nm)]!);
+  const tight = odexRun(k, cycles, PERIOD_S, DUTY, 1e-14).y;
+  const engineErr = relErr(engine, tight);
+  // loosest odex tolerance whose final state is as close to the tight reference as the engine's
+  const goal = Math.max(engineErr, 1e-12);
+  let chosen = -1, tOdex = NaN, odexErr = NaN;
+  for (const tol of [1e-6, 1e-7, 1e-8, 1e-9, 1e-10, 1e-11, 1e-12, 1e-13, 1e-14]) {
+    const y = odexRun(k, cycles, PERIOD_S, DUTY, tol).y;
+    const e = relErr(y, tight);
+    if (e <= goal || tol === 1e-14) {
+      t0 = performance.now();
+      odexRun(k, cycles, PERIOD_S, DUTY, tol);
+      tOdex = performance.now() - t0;
+      chosen = tol;
+      odexErr = e;
+      break;
+    }
+  }
+  return `${k}: engine ${tEngine.toFixed(2)} ms (final-state difference to odex at 1e-14: ${engineErr.toExponential(1)}); odex needs tol ${chosen.toExponential(0)} to get within ${goal.toExponential(1)} (got ${odexErr.toExponential(1)}): ${tOdex.toFixed(1)} ms; ratio odex/engine = ${(tOdex / tEngine).toFixed(0)}x (target >= 100x)`;
+}
+
+function memoryFlat(cycles: number): string {
+  const s = SCENARIOS.S3;
+  let count = 0;
+  const sink: SampleSink = {
+    sample() {
+      count++;
+    },
+  };
+  const sim = new Simulation(new CircuitModel(s.circuit), {
+    stopS: cycles * PERIOD_S, timeBaseS: PERIOD_S, controller: openLoop(false), record: ['L1.current', 'out'], sink, gridS: PERIOD_S / 4,
+  });
+  const gc = (globalThis as { gc?: () => void }).gc;
+  const heap: number[] = [];
+  let next = cycles / 10;
+  while (sim.step() === 'running') {
+    if (sim.timeS >= next * PERIOD_S) {
+      gc?.();
+      heap.push(process.memoryUsage().heapUsed / 2 ** 20);
+      next += cycles / 10;
+    }
+  }
+  const first = heap[0]!, last = heap[heap.length - 1]!;
+  return `memory over ${fmt(cycles)} cycles of S3 streaming ${fmt(count)} samples to a sink: heap ${first.toFixed(1)} MiB after 10 %, ${last.toFixed(1)} MiB at the end (${gc ? 'after gc' : 'no --expose-gc'}); growth ${(last - first).toFixed(2)} MiB`;
+}
+
+console.log('edgewise engine benchmark (warm, best of 3; invented scenarios of the engine issue)');
+console.log(`node ${process.version}, ${new Date().toISOString()}`);
+const bare = bareLoopRate(2_000_000);
+console.log(`bare loop of two cached propagators (S1 ceiling on this machine): ${fmt(bare)} cycles/s`);
+for (const k of keys) {
+  const rate = engineRate(k, 200_000);
+  console.log(`${SCENARIOS[k].title}: ${fmt(rate)} cycles/s over 200,000 cycles (target ${fmt(targets[k])}); ${(rate / bare).toFixed(2)} of the bare loop`);
+}
+for (const k of keys) console.log(versusOdex(k, 2000));
+console.log(memoryFlat(1_000_000));
