@@ -214,7 +214,14 @@ export function modelOf(sys: SwitchingSystem): CircuitModel {
 /** Top nx rows of expm(M h) for a topology, from the engine's propagator cache when present. */
 export function propagator(model: CircuitModel, key: number, h: number): Float64Array {
   const t = model.topology(key);
-  return t.cache.get(h) ?? t.computeE(h);
+  let E = t.cache.get(h);
+  if (E === undefined) {
+    E = t.computeE(h);
+    // share it with the engine's propagator cache (same content: top rows of expm(M h)), bounded
+    // like the engine's own default so Newton trials with new durations cannot grow it without end
+    if (t.cache.size < 256) t.cache.set(h, E);
+  }
+  return E;
 }
 
 /** f = M w (top nx rows): the state derivative in a topology. */
