@@ -1,0 +1,52 @@
+/**
+ * CLI benchmarks (numbers and ratios measured side by side in one run; not a test):
+ * - sweep throughput, points per second, one worker versus one per core;
+ * - CLI overhead (process start, tsx, parsing, CSV) over the library on a short run.
+ * Run: npx tsx packages/cli/bench/cli.bench.ts
+ */
+import { execFileSync } from 'node:child_process';
+import { mkdtempSync, readFileSync } from 'node:fs';
+import { availableParallelism, tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { buildPlan } from '../src/scenario/build.ts';
+import { parseScenario } from '../src/scenario/load.ts';
+import { runPlan } from '../src/runner.ts';
+import { runSweep } from '../src/sweep/run.ts';
+import { pointCount } from '../src/sweep/points.ts';
+import type { SweepSpec } from '../src/scenario/schema.ts';
+
+const root = fileURLToPath(new URL('../../../', import.meta.url));
+const bin = join(root, 'packages/cli/bin/edgewise.mjs');
+const tmp = mkdtempSync(join(tmpdir(), 'edgewise-bench-'));
+
+// Sweep throughput: the example sweep widened to 192 points so that worker start-up (tsx in each thread, about 1 s) is amortised.
+const raw = JSON.parse(readFileSync(join(root, 'examples/pol-sweep.json'), 'utf8')) as { sweep: { grid: { points?: number }[]; monteCarlo: { samples: number } } };
+raw.sweep.grid[0]!.points = 12;
+raw.sweep.monteCarlo.samples = 8;
+const parsed = parseScenario(raw);
+if (!parsed.ok) throw new Error(parsed.problems.join('\n'));
+const sweep = parsed.scenario.sweep as SweepSpec;
+const n = pointCount(sweep);
+const cores = availableParallelism();
+const time = async (f: () => Promise<unknown>): Promise<number> => {
+  const t0 = performance.now();
+  await f();
+  return (performance.now() - t0) / 1000;
+};
+const one = await time(() => runSweep(raw, sweep, { out: join(tmp, 'one.csv'), shard: undefined, workers: 1, resume: false, quiet: true }));
+const all = await time(() => runSweep(raw, sweep, { out: join(tmp, 'all.csv'), shard: undefined, workers: cores, resume: false, quiet: true }));
+console.log(`sweep of ${n} points: 1 worker ${(n / one).toFixed(1)} points/s, ${cores} workers ${(n / all).toFixed(1)} points/s, speed-up ${(one / all).toFixed(2)}x (includes worker start-up)`);
+
+// CLI overhead on a short run: the same scenario through the library and through the binary.
+const scenarioFile = join(root, 'test-vectors/buck-ccm-ratio.json');
+const s = parseScenario(JSON.parse(readFileSync(scenarioFile, 'utf8')));
+if (!s.ok) throw new Error(s.problems.join('\n'));
+const reps = 5;
+const lib = await time(async () => {
+  for (let i = 0; i < reps; i++) runPlan(buildPlan(s.scenario, scenarioFile));
+});
+const proc = await time(async () => {
+  for (let i = 0; i < reps; i++) execFileSync(process.execPath, [bin, 'run', scenarioFile, '--summary', '-', '--quiet']);
+});
+console.log(`short run (${reps}x): library ${(1000 * lib / reps).toFixed(1)} ms, CLI ${(1000 * proc / reps).toFixed(1)} ms per run, CLI/library ratio ${(proc / lib).toFixed(1)}x`);
