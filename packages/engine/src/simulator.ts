@@ -333,6 +333,7 @@ export class Simulation {
   private readonly intRefs: { a: LinearRef; b: LinearRef | null }[];
   private readonly intValues: Float64Array;
   private readonly intRows = new Map<number, { a: Float64Array; b: Float64Array | null }[]>();
+  private readonly intCache = new Map<number, Map<number, { L: Float64Array; G: (Float64Array | null)[] }>>();
   // controller
   private readonly ctrl: Controller | undefined;
   private readonly ctx: ControlContext;
@@ -1223,6 +1224,43 @@ export class Simulation {
       rows = this.intRefs.map((r) => ({ a: t.row(r.a), b: r.b ? t.row(r.b) : null }));
       this.intRows.set(t.key, rows);
     }
+    // operators per (topology, duration) are cached: periodic operation repeats its durations
+    let perTopo = this.intCache.get(t.key);
+    if (perTopo === undefined) {
+      perTopo = new Map();
+      this.intCache.set(t.key, perTopo);
+    }
+    let ops = perTopo.get(h);
+    if (ops === undefined) {
+      ops = this.integralOperators(t, h, rows);
+      if (perTopo.size >= this.maxCached) perTopo.clear();
+      perTopo.set(h, ops);
+    }
+    const n = this.n;
+    const L = ops.L;
+    for (let q = 0; q < rows.length; q++) {
+      const r = rows[q]!;
+      const Gq = ops.G[q];
+      let s = 0;
+      if (Gq) {
+        for (let i = 0; i < n; i++) {
+          let row = 0;
+          for (let j = 0; j < n; j++) row += Gq[i * n + j]! * w0[j]!;
+          s += w0[i]! * row;
+        }
+      } else {
+        for (let i = 0; i < n; i++) {
+          let row = 0;
+          for (let j = 0; j < n; j++) row += L[i * n + j]! * w0[j]!;
+          s += r.a[i]! * row;
+        }
+      }
+      this.intValues[q]! += s;
+    }
+  }
+
+  /** L(h) = int_0^h E(s) ds and, per quadratic integral, G(h) = int_0^h E(s)^T Q E(s) ds. */
+  private integralOperators(t: Topology, h: number, rows: { a: Float64Array; b: Float64Array | null }[]): { L: Float64Array; G: (Float64Array | null)[] } {
     const n = this.n;
     const M = t.fullM();
     let norm = 0;
@@ -1295,27 +1333,7 @@ export class Simulation {
       }
       E = mm(E, E);
     }
-    for (let q = 0; q < rows.length; q++) {
-      const r = rows[q]!;
-      const Gq = quad[q];
-      if (Gq) {
-        let s = 0;
-        for (let i = 0; i < n; i++) {
-          let row = 0;
-          for (let j = 0; j < n; j++) row += Gq[i * n + j]! * w0[j]!;
-          s += w0[i]! * row;
-        }
-        this.intValues[q]! += s;
-      } else {
-        let s = 0;
-        for (let i = 0; i < n; i++) {
-          let row = 0;
-          for (let j = 0; j < n; j++) row += L[i * n + j]! * w0[j]!;
-          s += r.a[i]! * row;
-        }
-        this.intValues[q]! += s;
-      }
-    }
+    return { L, G: quad };
   }
 
   // ----------------------------------------------------------------------------------------
