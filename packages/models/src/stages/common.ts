@@ -267,7 +267,7 @@ function bodySpec(b: BodyDiodeParams): BodyDiodeSpec {
   };
 }
 
-function checkSwitch(is: Issues, path: string, s: SwitchParams | undefined, bodyRequired: boolean): void {
+function checkSwitch(is: Issues, path: string, s: SwitchParams | undefined): void {
   if (!is.object(path, s, true)) return;
   is.nonNegative(`${path}.onOhms`, s!.onOhms, 0);
   if (s!.offOhms !== undefined) is.positive(`${path}.offOhms`, s!.offOhms);
@@ -277,7 +277,6 @@ function checkSwitch(is: Issues, path: string, s: SwitchParams | undefined, body
       is.nonNegative(`${path}.bodyDiode.onOhms`, s!.bodyDiode.onOhms, 0);
     }
   }
-  void bodyRequired;
 }
 
 function checkSteps<K extends 'ohms' | 'amps'>(
@@ -361,9 +360,9 @@ export function validateConverterParams(kind: StageKind, p: ConverterParams): vo
       is.add('load.kind', "must be 'resistor' or 'current'", (l as { kind?: unknown }).kind);
     }
   }
-  checkSwitch(is, 'mainSwitch', p.mainSwitch, false);
+  checkSwitch(is, 'mainSwitch', p.mainSwitch);
   if (rect === 'synchronous') {
-    checkSwitch(is, 'syncSwitch', p.syncSwitch, true);
+    checkSwitch(is, 'syncSwitch', p.syncSwitch);
     if (p.diode !== undefined) is.add('diode', "applies to rectification 'diode' only (use syncSwitch)", p.diode);
   } else {
     if (p.syncSwitch !== undefined) is.add('syncSwitch', "applies to rectification 'synchronous' only (use diode)", p.syncSwitch);
