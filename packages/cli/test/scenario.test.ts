@@ -10,7 +10,7 @@ import { parseScenario } from '../src/scenario/load.ts';
 import { InputError } from '../src/errors.ts';
 import { formatQuantity, parseQuantity } from '../src/units.ts';
 
-const valid = JSON.parse(readFileSync(new URL('../../../examples/pol-buck.json', import.meta.url), 'utf8')) as unknown;
+const valid = JSON.parse(readFileSync(new URL('../../../examples/pol-buck-open-loop.json', import.meta.url), 'utf8')) as unknown;
 const PROBLEM = /^(\(root\)|[A-Za-z$_][\w$-]*|\[\d+\])(\.[\w$-]+|\[\d+\]|\["[^"]*"\])*: \S/;
 
 function checkOutcome(doc: unknown): void {
