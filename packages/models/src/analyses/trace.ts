@@ -93,13 +93,95 @@ interface PendingInstant {
 /** Tag the tracer uses for its own boundary timers (kept away from controllers' small tags). */
 export const TRACER_TAG = -987_654_321;
 
+/** Receives the controller events a {@link TimingController} passes through (an object, not closures: see below). */
+export interface TimingListener {
+  controllerEvent(ctx: ControlContext, tag: number): void;
+}
+
+/**
+ * The context the inner controller sees: every call passes through, and timers and gate edges
+ * are noted on the way. A module-level class rather than an object literal of closures: our
+ * runtime wraps every closure creation in a naming helper, and one context per traced period
+ * made of ~20 closures dominated the cost of shooting.
+ */
+class TimingContext implements ControlContext {
+  constructor(
+    private readonly ctx: ControlContext,
+    private readonly tc: TimingController,
+  ) {}
+  get timeS(): number {
+    return this.ctx.timeS;
+  }
+  get cycle(): number {
+    return this.ctx.cycle;
+  }
+  get offsetS(): number {
+    return this.ctx.offsetS;
+  }
+  get timeBaseS(): number {
+    return this.ctx.timeBaseS;
+  }
+  signal(name: string): number {
+    return this.ctx.signal(name);
+  }
+  read(h: number): number {
+    return this.ctx.read(h);
+  }
+  gate(name: string): number {
+    return this.ctx.gate(name);
+  }
+  setGate(g: number, on: boolean): void {
+    const ctx = this.ctx, tc = this.tc;
+    if (ctx.isGateOn(g) !== on) {
+      tc.gateEdge?.(g, on, ctx.timeS);
+      if (on && g === tc.sectionGate && !tc.inStart) tc.sectionHit = true;
+    }
+    ctx.setGate(g, on);
+  }
+  isGateOn(g: number): boolean {
+    return this.ctx.isGateOn(g);
+  }
+  at(tag: number, cycle: number, offsetS: number): void {
+    this.tc.timerOrigin.set(tag, -1);
+    this.ctx.at(tag, cycle, offsetS);
+  }
+  after(tag: number, delayS: number): void {
+    const tc = this.tc;
+    tc.timerOrigin.set(tag, tc.inStart || tc.currentFixed ? -1 : tc.currentInstant);
+    this.ctx.after(tag, delayS);
+  }
+  cancel(tag: number): void {
+    this.tc.timerOrigin.delete(tag);
+    this.ctx.cancel(tag);
+  }
+  guard(spec: Parameters<ControlContext['guard']>[0]): number {
+    return this.ctx.guard(spec);
+  }
+  arm(g: number, tag: number): void {
+    this.ctx.arm(g, tag);
+  }
+  disarm(g: number): void {
+    this.ctx.disarm(g);
+  }
+  block(id: string): number {
+    return this.ctx.block(id);
+  }
+  setBlockState(b: number, value: number, index?: number): void {
+    this.ctx.setBlockState(b, value, index);
+  }
+  stop(message: string): void {
+    this.ctx.stop(message);
+  }
+}
+
 /**
  * Wraps a controller so that timers know which instant started them and turn-ons of a gate can
  * end the run. Every call is passed through unchanged otherwise.
  */
 export class TimingController implements Controller {
   private proxy: ControlContext | null = null;
-  private inStart = false;
+  /** true while the inner controller's start runs */
+  inStart = false;
   /** timer tag -> index of the instant that started it (-1: fixed time) */
   readonly timerOrigin = new Map<number, number>();
   /** set by the tracer: index of the instant being handled and whether its time is fixed */
@@ -108,6 +190,8 @@ export class TimingController implements Controller {
   sectionGate = -1;
   sectionHit = false;
   stopAtSection = false;
+  /** told of every controller event other than the tracer's own (before the inner controller) */
+  listener: TimingListener | null = null;
   /** called for every controller event other than the tracer's own */
   onControllerEvent: ((ctx: ControlContext, tag: number) => void) | null = null;
   /** called for the tracer's own timers */
@@ -119,57 +203,8 @@ export class TimingController implements Controller {
 
   constructor(private readonly inner: Controller) {}
 
-  private wrap(ctx: ControlContext): ControlContext {
-    // eslint-disable-next-line @typescript-eslint/no-this-alias
-    const self = this;
-    return {
-      get timeS() {
-        return ctx.timeS;
-      },
-      get cycle() {
-        return ctx.cycle;
-      },
-      get offsetS() {
-        return ctx.offsetS;
-      },
-      get timeBaseS() {
-        return ctx.timeBaseS;
-      },
-      signal: (name) => ctx.signal(name),
-      read: (h) => ctx.read(h),
-      gate: (name) => ctx.gate(name),
-      setGate(g, on) {
-        const was = ctx.isGateOn(g);
-        if (was !== on) {
-          self.gateEdge?.(g, on, ctx.timeS);
-          if (on && g === self.sectionGate && !self.inStart) self.sectionHit = true;
-        }
-        ctx.setGate(g, on);
-      },
-      isGateOn: (g) => ctx.isGateOn(g),
-      at(tag, cycle, offsetS) {
-        self.timerOrigin.set(tag, -1);
-        ctx.at(tag, cycle, offsetS);
-      },
-      after(tag, delayS) {
-        self.timerOrigin.set(tag, self.inStart || self.currentFixed ? -1 : self.currentInstant);
-        ctx.after(tag, delayS);
-      },
-      cancel(tag) {
-        self.timerOrigin.delete(tag);
-        ctx.cancel(tag);
-      },
-      guard: (spec) => ctx.guard(spec),
-      arm: (g, tag) => ctx.arm(g, tag),
-      disarm: (g) => ctx.disarm(g),
-      block: (id) => ctx.block(id),
-      setBlockState: (b, v, i) => ctx.setBlockState(b, v, i),
-      stop: (m) => ctx.stop(m),
-    };
-  }
-
   start(ctx: ControlContext): void {
-    this.proxy = this.wrap(ctx);
+    this.proxy = new TimingContext(ctx, this);
     if (this.sectionGateName !== null) this.sectionGate = ctx.gate(this.sectionGateName);
     this.inStart = true;
     this.onStart?.(ctx);
@@ -185,6 +220,7 @@ export class TimingController implements Controller {
       this.onOwnTimer?.(ctx);
       return;
     }
+    this.listener?.controllerEvent(ctx, tag);
     this.onControllerEvent?.(ctx, tag);
     this.inner.onEvent(this.proxy!, tag);
     if (this.sectionHit && this.stopAtSection) ctx.stop('reached the section (gate turn-on)');
@@ -238,84 +274,125 @@ export function derivative(model: CircuitModel, key: number, w: Float64Array): F
 }
 
 /**
- * Runs one period (to the section) from state `w0` with a fresh controller and records the chain.
- * Throws an Error naming the cause when the run fails or never reaches the section.
+ * Records one period as a chain: the engine's trace listener and the timing controller's
+ * listener in one object (methods, no per-period closures).
  */
-export function traceCycle(model: CircuitModel, sys: SwitchingSystem, section: Section, w0: Float64Array): Chain {
-  const nx = model.circuit.nx, n = nx + model.circuit.nu;
-  const tc = new TimingController(sys.createController());
-  const items: (ChainSegment | ChainInstant)[] = [];
-  let instants = 0;
-  let pending: PendingInstant | null = null;
-  // state at the end of the last segment (before the jumps of an instant)
-  let wEnd = new Float64Array(w0);
-  let keyEnd = -1;
+class ChainTracer implements TraceListener, TimingListener {
+  readonly items: (ChainSegment | ChainInstant)[] = [];
+  private instants = 0;
+  pending: PendingInstant | null = null;
+  /** state at the end of the last segment (before the jumps of an instant) */
+  wEnd: Float64Array;
+  keyEnd = -1;
 
-  const open = (timeS: number): PendingInstant => {
-    if (pending !== null && pending.timeS === timeS) return pending;
-    if (pending !== null) close(pending.before, wEnd);
-    pending = { timeS, timing: null, before: keyEnd, wBefore: new Float64Array(wEnd), resets: [], index: instants };
-    return pending;
-  };
-  const close = (after: number, wAfter: Float64Array): void => {
-    const p = pending!;
-    pending = null;
-    items.push({
+  constructor(
+    private readonly model: CircuitModel,
+    private readonly tc: TimingController,
+    private readonly nx: number,
+    private readonly n: number,
+    w0: Float64Array,
+  ) {
+    this.wEnd = new Float64Array(w0);
+    // instants at t = 0 (controller start) are fixed
+    this.pending = { timeS: 0, timing: { kind: 'fixed' }, before: -1, wBefore: new Float64Array(w0), resets: [], index: 0 };
+    tc.currentInstant = 0;
+    tc.currentFixed = true;
+  }
+
+  private open(timeS: number): PendingInstant {
+    const p = this.pending;
+    if (p !== null && p.timeS === timeS) return p;
+    if (p !== null) this.close(p.before, this.wEnd);
+    const q: PendingInstant = { timeS, timing: null, before: this.keyEnd, wBefore: new Float64Array(this.wEnd), resets: [], index: this.instants };
+    this.pending = q;
+    return q;
+  }
+
+  close(after: number, wAfter: Float64Array): void {
+    const p = this.pending!;
+    this.pending = null;
+    this.items.push({
       kind: 'instant', index: p.index, timeS: p.timeS, timing: p.timing ?? { kind: 'fixed' },
       before: p.before < 0 ? after : p.before, after, wBefore: p.wBefore, wAfter: new Float64Array(wAfter), resets: p.resets,
     });
-    instants++;
-  };
+    this.instants++;
+  }
 
-  const trace: TraceListener = {
-    segment(key, h, wStart) {
-      if (h <= 0) return;
-      if (pending !== null) close(key, wStart);
-      else if (items.length === 0) {
-        // no event at the start: still record the (fixed) start instant so resets apply
-        pending = { timeS: 0, timing: { kind: 'fixed' }, before: key, wBefore: new Float64Array(wStart), resets: [], index: instants };
-        close(key, wStart);
-      }
-      const last = items[items.length - 1];
-      const startS = last === undefined ? 0 : last.kind === 'instant' ? last.timeS : last.startS + last.durationS;
-      items.push({ kind: 'segment', key, startS, durationS: h, w0: new Float64Array(wStart) });
-      const E = propagator(model, key, h);
-      const w1 = new Float64Array(n);
-      for (let i = 0; i < nx; i++) {
-        let s = 0;
-        for (let j = 0; j < n; j++) s += E[i * n + j]! * wStart[j]!;
-        w1[i] = s;
-      }
-      for (let j = nx; j < n; j++) w1[j] = wStart[j]!;
-      wEnd = w1;
-      keyEnd = key;
-    },
-    guard(info) {
-      const p = open(info.timeS);
-      if (p.timing === null || p.timing.kind === 'fixed') p.timing = { kind: 'guard', row: new Float64Array(info.row) };
-      if (p.before < 0 || items.length === 0) p.before = info.before;
-      tc.currentInstant = p.index;
-      tc.currentFixed = false;
-    },
-    switched(timeS) {
-      open(timeS);
-    },
-    reset(timeS, stateIndex) {
-      const p = open(timeS);
-      if (!p.resets.includes(stateIndex)) p.resets.push(stateIndex);
-    },
-  };
-  tc.onControllerEvent = (ctx, tag) => {
-    const p = open(ctx.timeS);
+  /** Closes the period at its end state. */
+  finish(run: RunResult): void {
+    const items = this.items;
+    if (this.pending !== null) this.close(run.topologyKey, run.state);
+    else if (items[items.length - 1]?.kind === 'segment') {
+      // the period ended without any event at its end (cannot happen with a stop event, kept for safety)
+      this.pending = { timeS: run.timeS, timing: { kind: 'fixed' }, before: this.keyEnd, wBefore: new Float64Array(this.wEnd), resets: [], index: this.instants };
+      this.close(run.topologyKey, run.state);
+    }
+  }
+
+  segment(key: number, h: number, wStart: Float64Array): void {
+    if (h <= 0) return;
+    const items = this.items, nx = this.nx, n = this.n;
+    if (this.pending !== null) this.close(key, wStart);
+    else if (items.length === 0) {
+      // no event at the start: still record the (fixed) start instant so resets apply
+      this.pending = { timeS: 0, timing: { kind: 'fixed' }, before: key, wBefore: new Float64Array(wStart), resets: [], index: this.instants };
+      this.close(key, wStart);
+    }
+    const last = items[items.length - 1];
+    const startS = last === undefined ? 0 : last.kind === 'instant' ? last.timeS : last.startS + last.durationS;
+    items.push({ kind: 'segment', key, startS, durationS: h, w0: new Float64Array(wStart) });
+    const E = propagator(this.model, key, h);
+    const w1 = new Float64Array(n);
+    for (let i = 0; i < nx; i++) {
+      let s = 0;
+      for (let j = 0; j < n; j++) s += E[i * n + j]! * wStart[j]!;
+      w1[i] = s;
+    }
+    for (let j = nx; j < n; j++) w1[j] = wStart[j]!;
+    this.wEnd = w1;
+    this.keyEnd = key;
+  }
+
+  guard(info: { readonly timeS: number; readonly before: number; readonly row: Float64Array }): void {
+    const p = this.open(info.timeS);
+    if (p.timing === null || p.timing.kind === 'fixed') p.timing = { kind: 'guard', row: new Float64Array(info.row) };
+    if (p.before < 0 || this.items.length === 0) p.before = info.before;
+    this.tc.currentInstant = p.index;
+    this.tc.currentFixed = false;
+  }
+
+  switched(timeS: number): void {
+    this.open(timeS);
+  }
+
+  reset(timeS: number, stateIndex: number): void {
+    const p = this.open(timeS);
+    if (!p.resets.includes(stateIndex)) p.resets.push(stateIndex);
+  }
+
+  controllerEvent(ctx: ControlContext, tag: number): void {
+    const tc = this.tc;
+    const p = this.open(ctx.timeS);
     if (p.timing === null) {
       const origin = tc.timerOrigin.get(tag);
       p.timing = origin === undefined || origin < 0 ? { kind: 'fixed' } : { kind: 'timer', origin };
     }
     tc.currentInstant = p.index;
     tc.currentFixed = p.timing.kind === 'fixed';
-  };
-  let stopS: number;
+  }
+}
+
+/**
+ * Runs one period (to the section) from state `w0` with a fresh controller and records the chain.
+ * Throws an Error naming the cause when the run fails or never reaches the section.
+ */
+export function traceCycle(model: CircuitModel, sys: SwitchingSystem, section: Section, w0: Float64Array): Chain {
+  const nx = model.circuit.nx, n = nx + model.circuit.nu;
   validateSection(section);
+  const tc = new TimingController(sys.createController());
+  const tracer = new ChainTracer(model, tc, nx, n, w0);
+  tc.listener = tracer;
+  let stopS: number;
   if (section.kind === 'clock') {
     stopS = (section.cycles ?? 1) * sys.timeBaseS;
   } else {
@@ -323,21 +400,12 @@ export function traceCycle(model: CircuitModel, sys: SwitchingSystem, section: S
     tc.stopAtSection = true;
     stopS = section.maxPeriodS ?? 100 * sys.timeBaseS;
   }
-  // instants at t = 0 (controller start) are fixed
-  pending = { timeS: 0, timing: { kind: 'fixed' }, before: -1, wBefore: new Float64Array(w0), resets: [], index: 0 };
-  tc.currentInstant = 0;
-  tc.currentFixed = true;
-  const sim = new Simulation(model, { stopS, timeBaseS: sys.timeBaseS, controller: tc, initialState: w0, trace });
+  const sim = new Simulation(model, { stopS, timeBaseS: sys.timeBaseS, controller: tc, initialState: w0, trace: tracer });
   const run = sim.run();
   if (run.status === 'failed') throw new Error(`the run of one period failed: ${run.message}`);
   if (section.kind === 'gate-on' && !tc.sectionHit) {
     throw new Error(`no turn-on of gate "${section.gate}" within ${stopS} s (section.maxPeriodS): the switching stopped or the period is longer`);
   }
-  if (pending !== null) close(run.topologyKey, run.state);
-  else if (items[items.length - 1]?.kind === 'segment') {
-    // the period ended without any event at its end (cannot happen with a stop event, kept for safety)
-    pending = { timeS: run.timeS, timing: { kind: 'fixed' }, before: keyEnd, wBefore: new Float64Array(wEnd), resets: [], index: instants };
-    close(run.topologyKey, run.state);
-  }
-  return { items, periodS: run.timeS, nx, n, run };
+  tracer.finish(run);
+  return { items: tracer.items, periodS: run.timeS, nx, n, run };
 }
