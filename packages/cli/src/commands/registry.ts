@@ -3,7 +3,8 @@
  * @module
  */
 import type { Command } from './common.ts';
+import { compareCommand } from './compare.ts';
 import { steadyCommand } from './steady.ts';
 import { mergeCommand, sweepCommand } from './sweep.ts';
 
-export const extraCommands: readonly Command[] = [steadyCommand, sweepCommand, mergeCommand];
+export const extraCommands: readonly Command[] = [steadyCommand, compareCommand, sweepCommand, mergeCommand];

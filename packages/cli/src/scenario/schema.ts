@@ -192,12 +192,20 @@ const analysesSchema = z.strictObject({
     warmupCycles: count('cycles simulated before shooting', 0).optional(),
   }).optional(),
   compare: z.strictObject({
-    fromHz: quantity('Hz', 'positive').optional(),
-    toHz: quantity('Hz', 'positive').optional(),
-    points: count('frequencies').optional(),
+    input: z.enum(['duty', 'line', 'load-current']).optional()
+      .meta({ description: 'perturbed input: duty (default; per unit of duty), line (per volt of input), load-current (per ampere drawn from the output)' }),
+    output: signal.optional().meta({ description: 'response signal (default: the stage output voltage)' }),
+    frequencies: z.array(quantity('Hz', 'positive')).min(1).optional().meta({ description: 'frequencies of the response (instead of a log range)' }),
+    fromHz: quantity('Hz', 'positive', 'start of the log range (default fs / 1000)').optional(),
+    toHz: quantity('Hz', 'positive', 'end of the log range (default fs / 5)').optional(),
+    points: count('frequencies of the log range (default 40)', 2).optional(),
+    loadStep: z.strictObject({
+      amps: quantity('A', 'any', 'extra current drawn from the output from the step on'),
+      cycles: count('switching periods simulated after the step (default 300)').optional(),
+    }).optional(),
   }).optional(),
   efficiency: z.strictObject({
-    loads: z.array(z.union([z.number(), z.string()])).min(1).meta({ description: 'load values (same unit as the stage load) for the efficiency curve' }),
+    loads: z.array(quantity('1')).min(1).meta({ description: 'load values in the unit of the stage load (ohms or amperes) for the efficiency curve' }),
   }).optional(),
 });
 
