@@ -76,6 +76,10 @@ export function buckVm(p: BuckVmParams = {}): SwitchingSystem & { circuit: Circu
     { kind: 'capacitor', id: 'C', a: 'out', b: '0', farads: p.c ?? 20e-6, esrOhms: p.esr ?? 0 },
     { kind: 'resistor', id: 'R', a: 'out', b: '0', ohms: p.r ?? 5 },
     { kind: 'voltage-source', id: 'VC', pos: 'vc', neg: '0', volts: p.vc ?? 0.4 },
+    // a terminating resistor: the control node then has two terminals (the engine rejects a
+    // node with one as a likely misspelling); across an ideal source it changes no state, and
+    // at 1 Gohm its power (below 1e-9 W) is far below the energy-balance checks
+    { kind: 'resistor', id: 'RVC', a: 'vc', b: '0', ohms: 1e9 },
   ];
   return {
     circuit: { elements: els, blocks: [{ kind: 'ramp', id: 'RAMP', slopePerS: vm / T }] },
@@ -113,6 +117,7 @@ export function buckPcm(p: PcmParams = {}): SwitchingSystem & { circuit: Circuit
           { kind: 'resistor', id: 'R', a: 'out', b: '0', ohms: out.ohms } as const,
         ]),
     { kind: 'voltage-source', id: 'IC', pos: 'ic', neg: '0', volts: p.ic ?? 2 },
+    { kind: 'resistor', id: 'RIC', a: 'ic', b: '0', ohms: 1e9 },
   ];
   return {
     circuit: { elements: els, blocks: [{ kind: 'ramp', id: 'SC', slopePerS: p.ma ?? 0 }] },
@@ -231,7 +236,11 @@ export function boostVm(p: BoostParams & { vc?: number } = {}): SwitchingSystem 
   const base = boostOpenLoop(p);
   return {
     circuit: {
-      elements: [...base.circuit.elements, { kind: 'voltage-source', id: 'VC', pos: 'vc', neg: '0', volts: p.vc ?? 0.5 }],
+      elements: [
+        ...base.circuit.elements,
+        { kind: 'voltage-source', id: 'VC', pos: 'vc', neg: '0', volts: p.vc ?? 0.5 },
+        { kind: 'resistor', id: 'RVC', a: 'vc', b: '0', ohms: 1e9 },
+      ],
       blocks: [{ kind: 'ramp', id: 'RAMP', slopePerS: 1 / T }],
     },
     createController: comparatorPwm({ gate: 'g', ramp: 'RAMP', terms: [{ signal: 'RAMP.out', gain: 1 }, { signal: 'vc', gain: -1 }], threshold: 0, periodS: T }),

@@ -96,6 +96,40 @@ export function topologyKeyOf(model: CircuitModel, conducting: readonly string[]
   return key;
 }
 
+/**
+ * What every averaged model offers (CCM, DCM reduced and full order, peak current mode), so
+ * that the validation report takes any of them. Signals are engine signal names of the
+ * circuit the model was derived from; inputs are the circuit's inputs (u[0] = 1, then the
+ * independent sources by id).
+ */
+export interface AveragedModel {
+  readonly kind: 'ccm' | 'dcm-reduced' | 'dcm-full' | 'peak-current';
+  /** States of the averaged model (engine state names). */
+  readonly stateNames: readonly string[];
+  /** The circuit's inputs: "1" (constant), then the independent sources by id. */
+  readonly inputNames: readonly string[];
+  /** DC operating point of the states (volts, amperes). */
+  readonly dcState: Float64Array;
+  /** DC value of a signal at the operating point. */
+  dcValue(signal: string): number;
+  /**
+   * Small-signal model about the operating point: inputs are deviations of the circuit's inputs
+   * (all of them, u[0] included with a zero column) at fixed control, the output is `signal`.
+   * For the CCM model at a fixed duty this is the large-signal averaged model itself (it is
+   * linear in x and u).
+   */
+  smallSignal(signal: string): StateSpace;
+  /** Duty d -> signal (for current mode: control input -> signal). */
+  controlToOutput(signal: string): TransferFunction;
+  /** Independent source (by id) -> signal: line-to-output, or output impedance with a current source at the output. */
+  inputToOutput(source: string, signal: string): TransferFunction;
+  /**
+   * Peak-to-peak ripple of a signal by the straight-line (small-ripple) approximation
+   * (Erickson and Maksimovic 2nd ed., ch. 2), or null when the model has no ripple estimate.
+   */
+  rippleEstimate(signal: string): number | null;
+}
+
 /** Options of {@link ccmAveragedModel}. */
 export interface CcmAveragingOptions {
   /** Devices conducting during the on-time (interval d), e.g. ["S"]. */
@@ -109,10 +143,13 @@ export interface CcmAveragingOptions {
    * controller blocks such as ramps are left out because averaging does not apply to them).
    */
   readonly states?: readonly string[];
+  /** Switching period, seconds: needed only for {@link AveragedModel.rippleEstimate} (null without it). */
+  readonly periodS?: number;
 }
 
 /** A CCM averaged model (Middlebrook and Cuk 1976). */
-export interface CcmAveragedModel {
+export interface CcmAveragedModel extends AveragedModel {
+  readonly kind: 'ccm';
   readonly duty: number;
   readonly stateNames: readonly string[];
   readonly inputNames: readonly string[];
@@ -138,6 +175,8 @@ export function ccmAveragedModel(circuit: SwitchingSystem['circuit'], options: C
   const model = modelOf({ circuit, createController: () => ({ start() {}, onEvent() {} }), timeBaseS: 1 });
   const { duty: D } = options;
   if (!(D > 0 && D < 1)) throw new RangeError(`duty must be in (0, 1), got ${String(D)}`);
+  const Ts = options.periodS;
+  if (Ts !== undefined && !(Ts > 0 && Number.isFinite(Ts))) throw new RangeError(`periodS must be a time > 0 s, got ${String(Ts)}`);
   const c = model.circuit;
   const names = options.states ?? c.stateNames.filter((nm) => {
     const id = nm.slice(0, nm.indexOf('.'));
@@ -181,7 +220,16 @@ export function ccmAveragedModel(circuit: SwitchingSystem['circuit'], options: C
   };
   const dot = (r: Float64Array, w: Float64Array): number => r.reduce((s, v, j) => s + v * w[j]!, 0);
   const cOf = (r1: Float64Array, r2: Float64Array): number[] => idx.map((k) => D * r1[k]! + (1 - D) * r2[k]!);
+  // state derivative in the on-interval at the operating point: the straight-line ripple slope
+  const f1 = new Float64Array(nx);
+  for (let i = 0; i < nx; i++) {
+    let v = 0;
+    for (let j = 0; j < nx; j++) v += m1.a[i * nx + j]! * X[j]!;
+    for (let j = 0; j < nu; j++) v += m1.b[i * nu + j]! * U[j]!;
+    f1[i] = v;
+  }
   return {
+    kind: 'ccm',
     duty: D,
     stateNames: names,
     inputNames: c.inputNames,
@@ -205,6 +253,30 @@ export function ccmAveragedModel(circuit: SwitchingSystem['circuit'], options: C
       const e = dot(r1, wAt) - dot(r2, wAt);
       const cr = cOf(r1, r2);
       return (s) => evaluateStateSpace(a, nx, bd, cr, e, s);
+    },
+    smallSignal(sig) {
+      const { r1, r2 } = rows(sig);
+      const d = new Float64Array(nu);
+      for (let j = 0; j < nu; j++) d[j] = D * r1[nxF + j]! + (1 - D) * r2[nxF + j]!;
+      d[0] = 0;
+      const bs = b.slice();
+      for (let i = 0; i < nx; i++) bs[i * nu] = 0;
+      return { nx, nu, ny: 1, a: a.slice(), b: bs, c: Float64Array.from(cOf(r1, r2)), d };
+    },
+    rippleEstimate(sig) {
+      if (Ts === undefined) return null;
+      const { r1, r2 } = rows(sig);
+      // straight-line ripple: the states run from valley X - f1 D T / 2 to peak X + f1 D T / 2
+      // in the on-interval and back in the off-interval; the signal may also jump between the
+      // two topologies' output equations
+      const half = (D * Ts) / 2;
+      const wLo = wAt.slice(), wHi = wAt.slice();
+      idx.forEach((k, i) => {
+        wLo[k] = X[i]! - f1[i]! * half;
+        wHi[k] = X[i]! + f1[i]! * half;
+      });
+      const v = [dot(r1, wLo), dot(r1, wHi), dot(r2, wHi), dot(r2, wLo)];
+      return Math.max(...v) - Math.min(...v);
     },
     inputToOutput(source, sig) {
       const u = c.inputNames.indexOf(source);

@@ -26,6 +26,7 @@ export type {
 } from './cycles.ts';
 export { AUDIO_BAND_HZ, measureCycles, stepFigures } from './cycles.ts';
 export type {
+  AveragedModel,
   CcmAveragedModel,
   CcmAveragingOptions,
   ResponsePoint,
@@ -38,3 +39,13 @@ export type { SineInjectionOptions } from './frequency-response.ts';
 export { sampledDataResponse, sineInjectionResponse, switchingFrequencyResponse } from './frequency-response.ts';
 export type { EfficiencyOptions, EfficiencyPoint, EfficiencyReport } from './efficiency.ts';
 export { efficiencySweep, steadyStateEfficiency } from './efficiency.ts';
+export type {
+  DcComparison,
+  ResponseComparison,
+  RippleComparison,
+  StepComparison,
+  StepSummary,
+  ValidationOptions,
+  ValidationReport,
+} from './validation.ts';
+export { validateAveragedModel } from './validation.ts';
