@@ -669,6 +669,39 @@ export function compileCircuit(spec: CircuitSpec): CompiledCircuit {
     for (const br of branches) {
       if (br.p === br.n && br.kind !== BranchKind.Resistor) bad(br.element, 'self-loop', `both terminals on the same node "${br.p < 0 ? ground : nodes[br.p]}"`);
     }
+    // A node with a single element terminal carries no current and is almost always a
+    // misspelt node name.
+    const touches = new Array<number>(nodes.length).fill(0);
+    const owners: string[][] = nodes.map(() => []);
+    for (const br of branches) {
+      if (br.id !== br.element) continue; // a body diode shares its switch's terminals
+      for (const nd of [br.p, br.n]) if (nd >= 0) {
+        touches[nd]!++;
+        owners[nd]!.push(br.element);
+      }
+    }
+    for (let i = 0; i < nodes.length; i++) {
+      if (touches[i] === 1) bad(nodes[i]!, 'dangling-node', `node "${nodes[i]}" is connected only to ${owners[i]![0]}: a misspelt node name? (every node needs two element terminals)`);
+    }
+    // Sources and capacitors that are always zero-resistance voltage constraints must not form
+    // a loop (a source shorted by such elements): the network would have no solution.
+    {
+      const par = Array.from({ length: nodes.length + 1 }, (_, i) => i);
+      const find = (i: number): number => {
+        while (par[i] !== i) {
+          par[i] = par[par[i]!]!;
+          i = par[i]!;
+        }
+        return i;
+      };
+      for (const br of branches) {
+        const hard = (br.kind === BranchKind.VSource || br.kind === BranchKind.Capacitor) && br.ohms === 0;
+        if (!hard || br.p === br.n) continue;
+        const a = find(br.p < 0 ? nodes.length : br.p), b = find(br.n < 0 ? nodes.length : br.n);
+        if (a === b) bad(br.element, 'voltage-loop', `closes a loop of voltage sources and capacitors with zero resistance (a shorted source); add series resistance or ESR`);
+        else par[a] = b;
+      }
+    }
     if (nodes.length === 0) bad('circuit', 'empty', 'the circuit has no node other than ground');
   }
   // Steps of the initial source values are sorted by time.
