@@ -8,6 +8,7 @@ import { SampleKind, Simulation, type IntegralSpec, type RunCounters, type Sampl
 import type { CsvWriter } from './csv.ts';
 import { withMark } from './drive.ts';
 import type { Plan } from './scenario/build.ts';
+import { conductionTerms, makeAccountant, switchingWatts, type LossPart, type SwitchingLossJson } from './analyses/losses.ts';
 
 /** Metrics of one signal over the window. */
 export interface SignalMetrics {
@@ -42,10 +43,23 @@ export interface RunSummary {
   powers?: Record<string, PowerMetrics>;
   efficiency?: number;
   modes?: { ccmCycles: number; dcmCycles: number; lastCycle: 'CCM' | 'DCM' };
+  /** Loss breakdown over the window: conduction per element part, switching per device when the scenario has switching-loss data. */
+  losses?: LossSummary;
   /** Turn-ons of the main switch in the window and the mean switching frequency between the first and last. */
   switching?: { turnOns: number; frequencyHz: number };
   counters: RunCounters;
   [extra: string]: unknown;
+}
+
+/** Loss breakdown over the window, watts. */
+export interface LossSummary {
+  conduction: { element: string; part: LossPart; watts: number }[];
+  conductionW: number;
+  switching?: SwitchingLossJson[];
+  switchingW?: number;
+  totalW: number;
+  /** Output power over (input power + accounted switching losses), when the scenario defines an efficiency. */
+  efficiencyWithSwitching?: number;
 }
 
 /** Per-cycle statistics (one entry per period in the window). */
@@ -95,6 +109,13 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
     });
   }
   plan.powers.forEach((p, i) => integrals.push({ name: `p${i}`, of: p.voltage, times: p.current }));
+  const lossTerms = conductionTerms(plan.model, plan.lossExclude);
+  for (const t of lossTerms) integrals.push(t.integral);
+  const accountant = plan.scenario.switchingLosses !== undefined ? makeAccountant(plan.model, plan.scenario.switchingLosses, {
+        fromS: plan.fromS,
+        // a clock edge exactly at the stop time starts the next period: not this window's
+        toS: plan.stopS - 1e-9 * (plan.periodS ?? plan.stopS),
+      }, plan.name) : undefined;
 
   // Window statistics from the samples.
   const min = new Float64Array(nSig).fill(Infinity);
@@ -247,6 +268,7 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
     recordFromS: plan.fromS,
     recordEvents: plan.recordEvents,
     integrals,
+    ...(accountant !== undefined ? { trace: accountant } : {}),
     ...(options.initialState !== undefined
       ? { initialState: options.initialState }
       : plan.initial !== undefined ? { initialState: plan.initial } : {}),
@@ -300,6 +322,21 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
       const total = (names: readonly string[]): number => names.reduce((a, n) => a + powers[n]!.mean, 0);
       summary.efficiency = total(plan.efficiency.output) / total(plan.efficiency.input);
     }
+  }
+  if (lossTerms.length > 0 || accountant !== undefined) {
+    const conduction = lossTerms.map((t) => ({ element: t.element, part: t.part, watts: span > 0 ? (t.scale * windowIntegral(t.integral.name)) / span : 0 }));
+    const conductionW = conduction.reduce((a, x) => a + x.watts, 0);
+    const losses: LossSummary = { conduction, conductionW, totalW: conductionW };
+    if (accountant !== undefined && span > 0) {
+      losses.switching = switchingWatts(accountant.energies(), span);
+      losses.switchingW = losses.switching.reduce((a, x) => a + x.totalW, 0);
+      losses.totalW = conductionW + losses.switchingW;
+      if (plan.efficiency !== undefined && summary.powers !== undefined) {
+        const total = (names: readonly string[]): number => names.reduce((a, n) => a + summary.powers![n]!.mean, 0);
+        losses.efficiencyWithSwitching = total(plan.efficiency.output) / (total(plan.efficiency.input) + losses.switchingW);
+      }
+    }
+    summary.losses = losses;
   }
   if (mainMask !== 0) summary.switching = { turnOns, frequencyHz: turnOns > 1 ? (turnOns - 1) / (lastOn - firstOn) : 0 };
   if (trackCycles && ccm + dcm > 0) summary.modes = { ccmCycles: ccm, dcmCycles: dcm, lastCycle: cycleDcm ? 'DCM' : 'CCM' };

@@ -21,8 +21,11 @@ interface Expectation {
 const dir = join(ROOT, 'test-vectors');
 const files = readdirSync(dir).filter((f) => f.endsWith('.json')).sort();
 const vectors = files.map((f) => {
-  const doc = JSON.parse(readFileSync(join(dir, f), 'utf8')) as { expect?: Expectation[]; analyses?: { steady?: unknown } };
-  return { file: f, command: doc.analyses?.steady !== undefined ? 'steady' : 'run', expect: doc.expect ?? [] };
+  const doc = JSON.parse(readFileSync(join(dir, f), 'utf8')) as { expect?: Expectation[]; analyses?: { steady?: unknown; compare?: unknown; efficiency?: unknown } };
+  // the analysis a vector asks for picks the command
+  const a = doc.analyses;
+  const command = a?.compare !== undefined ? 'compare' : a?.efficiency !== undefined ? 'efficiency' : a?.steady !== undefined ? 'steady' : 'run';
+  return { file: f, command, expect: doc.expect ?? [] };
 });
 
 const results = new Map<string, CliResult>();
@@ -33,8 +36,9 @@ beforeAll(async () => {
 }, 300_000);
 
 describe('test vectors through the CLI', () => {
-  it('has at least 25 vectors, each with expected values and sources', () => {
+  it('has at least 25 vectors, each with expected values and sources, and covers every analysis command', () => {
     expect(vectors.length).toBeGreaterThanOrEqual(25);
+    for (const c of ['run', 'steady', 'compare', 'efficiency']) expect(vectors.some((v) => v.command === c), c).toBe(true);
     for (const v of vectors) {
       expect(v.expect.length, v.file).toBeGreaterThan(0);
       for (const e of v.expect) expect(e.source.length, `${v.file} ${e.path}`).toBeGreaterThan(10);

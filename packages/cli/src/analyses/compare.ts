@@ -238,6 +238,9 @@ function compareCircuit(plant: StagePlant, duty: number, where: string): Compare
   const out = stage.signals.outputVoltage;
   const extra: ElementSpec[] = [
     { kind: 'voltage-source', id: DUTY_SOURCE, pos: DUTY_NODE, neg: '0', volts: duty },
+    // a second terminal at the control node (the engine rejects single-terminal nodes); it draws
+    // a current from the ideal source and nothing else
+    { kind: 'resistor', id: 'RDUTY', a: DUTY_NODE, b: '0', ohms: 1e6 },
     { kind: 'current-source', id: LOAD_STEP_SOURCE, from: out, to: '0', amps: 0 },
   ];
   const spec: CircuitSpec = {

@@ -10,6 +10,7 @@ import { InputError } from '../errors.ts';
 import { createPwmDrive } from '../drive.ts';
 import type { CircuitPlant, Scenario } from './schema.ts';
 import { buildStagePlant } from './build-stage.ts';
+import { makeAccountant } from '../analyses/losses.ts';
 
 /** A measured power: gain * v * i, averaged over the window. */
 export interface PowerSpec {
@@ -44,6 +45,8 @@ export interface Plan {
   readonly mainGate: string | undefined;
   /** The stage and its parameters, for stage plants (analyses need them). */
   readonly stage: Stage | undefined;
+  /** Elements left out of the conduction-loss breakdown: loads and elements whose power is measured. */
+  readonly lossExclude: ReadonlySet<string>;
   readonly scenario: Scenario;
 }
 
@@ -165,6 +168,16 @@ export function buildPlan(scenario: Scenario, where: string): Plan {
     }
   }
   if (problems.length > 0) throw new InputError(where, problems);
+  // validates the switching-loss data against the circuit's switches and diodes
+  if (scenario.switchingLosses !== undefined) makeAccountant(model, scenario.switchingLosses, {}, where);
+  const lossExclude = new Set<string>();
+  for (const p of powers) lossExclude.add(p.current.slice(0, Math.max(0, p.current.indexOf('.'))));
+  if (stage !== undefined) {
+    for (const m of model.circuit.measurements) {
+      if (m.name === stage.signals.loadCurrent) for (const t of m.terms) lossExclude.add(t.signal.slice(0, t.signal.indexOf('.')));
+    }
+  }
+  lossExclude.delete('');
 
   return {
     name: scenario.name ?? 'scenario',
@@ -185,6 +198,7 @@ export function buildPlan(scenario: Scenario, where: string): Plan {
     efficiency: run.efficiency,
     mainGate: stage !== undefined ? stage.gates.main : plant.kind === 'circuit' ? plant.drive?.main : undefined,
     stage,
+    lossExclude,
     scenario,
   };
 }

@@ -7,13 +7,13 @@ import { z } from 'zod';
 import { parseQuantity } from '../units.ts';
 
 /** Units a scenario field may carry ('1' for dimensionless ratios). */
-export type FieldUnit = 'V' | 'A' | 'Ω' | 'H' | 'F' | 'Hz' | 's' | 'W' | 'J' | '1';
+export type FieldUnit = 'V' | 'A' | 'Ω' | 'H' | 'F' | 'Hz' | 's' | 'W' | 'J' | 'C' | '1';
 
 /** Range constraint of a quantity field. */
 export type Bound = 'any' | 'positive' | 'nonnegative' | 'fraction';
 
 const UNIT_WORD: Record<FieldUnit, string> = {
-  V: 'volts', A: 'amperes', 'Ω': 'ohms', H: 'henries', F: 'farads', Hz: 'hertz', s: 'seconds', W: 'watts', J: 'joules', '1': 'a plain number',
+  V: 'volts', A: 'amperes', 'Ω': 'ohms', H: 'henries', F: 'farads', Hz: 'hertz', s: 'seconds', W: 'watts', J: 'joules', C: 'coulombs', '1': 'a plain number',
 };
 
 const BOUND_TEXT: Record<Bound, string> = {

@@ -209,6 +209,38 @@ const analysesSchema = z.strictObject({
   }).optional(),
 });
 
+const transitionSchema = z.discriminatedUnion('kind', [
+  z.strictObject({
+    kind: z.literal('linear-overlap'),
+    rise: quantity('s', 'nonnegative', 'current rise time at turn-on (0.5 V I rise lost per turn-on)'),
+    fall: quantity('s', 'nonnegative', 'current fall time at turn-off (0.5 V I fall lost per turn-off)'),
+  }),
+  z.strictObject({
+    kind: z.literal('energy-table'),
+    currents: z.array(quantity('A')).min(2).meta({ description: 'commutated current grid, strictly increasing' }),
+    volts: z.array(quantity('V')).min(2).meta({ description: 'blocked voltage grid, strictly increasing' }),
+    turnOn: z.array(z.array(quantity('J', 'nonnegative'))).meta({ description: 'turn-on energy, one row per current, one entry per voltage' }),
+    turnOff: z.array(z.array(quantity('J', 'nonnegative'))).meta({ description: 'turn-off energy, one row per current, one entry per voltage' }),
+    extrapolation: z.enum(['linear', 'clamp']).optional(),
+  }),
+]);
+
+/** Switching-loss data by element id (accounted per transition, not fed back into the circuit). */
+export const switchingLossSchema = z.strictObject({
+  switches: z.record(z.string().min(1), z.strictObject({
+    transitions: transitionSchema.optional(),
+    outputCapacitance: quantity('F', 'nonnegative', 'output capacitance (0.5 C V^2 lost per hard turn-on)').optional(),
+    gate: z.strictObject({
+      charge: quantity('C', 'nonnegative', 'total gate charge'),
+      driveVolts: quantity('V', 'nonnegative', 'gate drive voltage'),
+    }).optional(),
+    bodyDiodeRecoveredCharge: quantity('C', 'nonnegative', 'reverse-recovery charge of the body diode').optional(),
+  })).optional().meta({ description: 'by switch element id (stage plants: Q1, Q2)' }),
+  diodes: z.record(z.string().min(1), z.strictObject({
+    recoveredCharge: quantity('C', 'nonnegative', 'reverse-recovery charge'),
+  })).optional().meta({ description: 'by diode element id (stage plants: D1)' }),
+});
+
 export const plotSchema = z.strictObject({ title: z.string().min(1), signals: z.array(signal).min(1) });
 
 /** The whole scenario file. */
@@ -220,6 +252,7 @@ export const scenarioSchema = z.strictObject({
   run: runSchema,
   plots: z.array(plotSchema).optional(),
   analyses: analysesSchema.optional(),
+  switchingLosses: switchingLossSchema.optional().meta({ description: 'switching-loss data of the switches and diodes; adds a loss breakdown to run, steady and efficiency summaries of stage plants' }),
   sweep: sweepSchema.optional(),
   expect: z.array(expectSchema).optional(),
 });
@@ -229,6 +262,7 @@ export type Scenario = z.output<typeof scenarioSchema>;
 export type CircuitPlant = z.output<typeof circuitPlantSchema>;
 export type RunSpec = z.output<typeof runSchema>;
 export type SweepSpec = z.output<typeof sweepSchema>;
+export type SwitchingLossSpec = z.output<typeof switchingLossSchema>;
 export type PwmDrive = z.output<typeof pwmDriveSchema>;
 
 /** JSON Schema (draft 2020-12) of the input form of a scenario file, for editors. */
