@@ -24,6 +24,18 @@ function file(name: string, content: unknown): string {
   return p;
 }
 
+const stage = {
+  name: 'stage',
+  plant: {
+    kind: 'stage', converter: 'buck', switchingHz: '100 kHz', input: { volts: 12 },
+    inductor: { henries: '50 uH' }, outputCapacitor: { farads: '20 uF' }, load: { kind: 'resistor', ohms: 5 },
+    control: { kind: 'open-loop', duty: 0.4 },
+  },
+  run: { cycles: 5 },
+};
+const compareRange = { ...stage, analyses: { compare: { fromHz: '1 kHz', toHz: '60 kHz' } } };
+const lossUnit = { ...stage, switchingLosses: { switches: { Q1: { gate: { charge: '5 V', driveVolts: 5 } } } } };
+
 describe('bad input: exit status 2 with the JSON path and the reason', () => {
   it('reports each case clearly, without stack traces', async () => {
     const bad = structuredClone(rcScenario) as { plant: { elements: Record<string, unknown>[] }; run: Record<string, unknown> };
@@ -50,6 +62,10 @@ describe('bad input: exit status 2 with the JSON path and the reason', () => {
       [['run', file('ok.json', rcScenario), '--bogus'], 2, /unknown option --bogus/],
       [['frobnicate'], 2, /unknown command "frobnicate"/],
       [['run', file('shoot.json', failing), '--out', join(tmp, 'shoot.csv')], 1, /simulation failed \(shoot-through\)/],
+      [['compare', file('compare-circuit.json', rcScenario)], 2, /plant\.kind: compare needs a stage plant/],
+      [['compare', file('compare-range.json', compareRange)], 2, /analyses\.compare\.toHz: must be below half the switching frequency/],
+      [['efficiency', file('efficiency-missing.json', { ...stage, analyses: {} })], 2, /analyses\.efficiency: missing/],
+      [['run', file('losses-unit.json', lossUnit), '--summary', join(tmp, 'losses.json')], 2, /switchingLosses\.switches\.Q1\.gate\.charge: "5 V": expected a value in C/],
     ];
     const results = await inBatches(cases, 4, ([args]) => cli(args));
     results.forEach((r, i) => {
@@ -59,7 +75,7 @@ describe('bad input: exit status 2 with the JSON path and the reason', () => {
       expect(r.stderr).not.toMatch(/\n\s+at /); // no stack trace
     });
     // The failed run left no output behind, not even a temporary file.
-    expect(readdirSync(tmp).filter((f) => f.startsWith('shoot.csv'))).toEqual([]);
+    expect(readdirSync(tmp).filter((f) => f.startsWith('shoot.csv') || f.startsWith('losses.json'))).toEqual([]);
   }, 60_000);
 });
 
@@ -84,7 +100,7 @@ describe('outputs', () => {
   }, 30_000);
 
   it('prints help with an example for every command, and a JSON Schema', async () => {
-    const commands = ['run', 'steady', 'sweep', 'merge', 'check', 'schema', 'demo'];
+    const commands = ['run', 'steady', 'compare', 'efficiency', 'sweep', 'merge', 'check', 'schema', 'demo'];
     const rs = await inBatches(commands, 4, (c) => cli([c, '--help']));
     rs.forEach((r, i) => {
       expect(r.code).toBe(0);
