@@ -624,11 +624,15 @@ export class Simulation {
         return sim.gateOn[g] === 1;
       }
       at(tag: number, cycle: number, offsetS: number): void {
+        if (!Number.isInteger(cycle) || !Number.isFinite(offsetS)) throw new RangeError(`timer ${tag}: cycle must be an integer and offsetS finite, got ${String(cycle)}, ${String(offsetS)}`);
+        if ((cycle - sim.cyc) * sim.tb + (offsetS - sim.off) < 0) {
+          throw new RangeError(`timer ${tag}: scheduled in the past (cycle ${cycle} + ${offsetS} s is before t = ${sim.timeS} s)`);
+        }
         sim.removeTimer(tag);
         sim.push(cycle, offsetS, KIND_TIMER, tag);
       }
       after(tag: number, delayS: number): void {
-        if (!(delayS >= 0)) throw new RangeError(`timer delay must be >= 0 s, got ${String(delayS)}`);
+        if (!(delayS >= 0 && delayS < Infinity)) throw new RangeError(`timer ${tag}: delay must be a finite time >= 0 s, got ${String(delayS)}`);
         sim.removeTimer(tag);
         sim.push(sim.cyc, sim.off + delayS, KIND_TIMER, tag);
       }

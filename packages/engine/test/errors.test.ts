@@ -156,3 +156,31 @@ describe('current sources and diodes', () => {
     expect(r.message).toBe('current source I1 has no path in topology [D1=off] at t = 0 s (no diode can take its current)');
   });
 });
+
+describe('controller mistakes are named errors', () => {
+  const rc: CircuitSpec = {
+    elements: [
+      { kind: 'voltage-source', id: 'V1', pos: 'a', neg: '0', volts: 1 },
+      { kind: 'resistor', id: 'R1', a: 'a', b: '0', ohms: 1 },
+    ],
+  };
+  const run = (f: (ctx: Parameters<Controller['onEvent']>[0]) => void) =>
+    simulate(rc, { stopS: 1e-3, timeBaseS: 1e-4, controller: { start: (ctx) => ctx.at(0, 2, 0), onEvent: (ctx) => f(ctx) } });
+  it('a timer in the past', () => {
+    const r = run((ctx) => ctx.at(1, 1, 0));
+    expect(r.status).toBe('failed');
+    expect(r.message).toBe('timer 1: scheduled in the past (cycle 1 + 0 s is before t = 0.0002 s)');
+  });
+  it('a NaN delay', () => {
+    const r = run((ctx) => ctx.after(1, Number.NaN));
+    expect(r.status).toBe('failed');
+    expect(r.message).toBe('timer 1: delay must be a finite time >= 0 s, got NaN');
+  });
+  it('a NaN block state', () => {
+    const r = simulate({ ...rc, blocks: [{ kind: 'ramp', id: 'r', slopePerS: 1 }] }, {
+      stopS: 1e-3, controller: { start: (ctx) => ctx.after(0, 1e-4), onEvent: (ctx) => ctx.setBlockState(ctx.block('r'), Number.NaN) },
+    });
+    expect(r.status).toBe('failed');
+    expect(r.message).toBe('block state value must be finite, got NaN');
+  });
+});
