@@ -49,3 +49,5 @@ export type {
   ValidationReport,
 } from './validation.ts';
 export { validateAveragedModel } from './validation.ts';
+export type { DcmAveragedModel, DcmAveragingOptions } from './dcm-averaging.ts';
+export { dcmAveragedModel } from './dcm-averaging.ts';
