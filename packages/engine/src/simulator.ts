@@ -298,6 +298,8 @@ export class Simulation {
   private qSeq = new Float64Array(16);
   private qLen = 0;
   private seq = 0;
+  /** cached index of the earliest entry, -1 when the queue changed */
+  private qNext = -1;
   // gates
   private readonly gateMask: Int32Array;
   private readonly gateOn: Uint8Array;
@@ -517,6 +519,7 @@ export class Simulation {
       off -= k * this.tb;
       if (off < 0) off = 0;
     }
+    this.qNext = -1;
     const i = this.qLen++;
     this.qCyc[i] = cyc;
     this.qOff[i] = off;
@@ -528,7 +531,8 @@ export class Simulation {
   private removeTimer(tag: number): void {
     for (let i = 0; i < this.qLen; i++) {
       if (this.qKind[i] === KIND_TIMER && this.qTag[i] === tag) {
-        const last = --this.qLen;
+        this.qNext = -1;
+      const last = --this.qLen;
         this.qCyc[i] = this.qCyc[last]!;
         this.qOff[i] = this.qOff[last]!;
         this.qKind[i] = this.qKind[last]!;
@@ -541,12 +545,14 @@ export class Simulation {
 
   /** index of the earliest queue entry (ties: stop last, then by kind, then by scheduling order) */
   private nextIndex(): number {
+    if (this.qNext >= 0) return this.qNext;
     let best = 0;
     for (let i = 1; i < this.qLen; i++) {
       const dc = this.qCyc[i]! - this.qCyc[best]!;
       if (dc < 0 || (dc === 0 && (this.qOff[i]! < this.qOff[best]! ||
         (this.qOff[i] === this.qOff[best] && this.before(i, best))))) best = i;
     }
+    this.qNext = best;
     return best;
   }
 
@@ -1477,6 +1483,7 @@ export class Simulation {
       if (this.qCyc[i] !== this.cyc || this.qOff[i] !== this.off) break;
       const kind = this.qKind[i]!;
       const tag = this.qTag[i]!;
+      this.qNext = -1;
       const last = --this.qLen;
       this.qCyc[i] = this.qCyc[last]!;
       this.qOff[i] = this.qOff[last]!;
@@ -1573,11 +1580,14 @@ export class Simulation {
   }
 
   private settleAndSwitch(before: number): void {
-    if (this.diodeCount !== 0 || this.lookupTopology(this.key).heldInductors.length !== 0) this.settle();
+    let t = this.key === this.topo.key ? this.topo : this.lookupTopology(this.key);
+    if (this.diodeCount !== 0 || t.heldInductors.length !== 0) {
+      this.settle();
+      if (this.key !== t.key) t = this.lookupTopology(this.key);
+    }
     this.turnedOff = 0;
-    if (this.key !== this.topo.key) {
-      this.topo = this.lookupTopology(this.key);
-      this.counters.topologies = this.model.topologyCount;
+    if (t !== this.topo) {
+      this.topo = t;
       this.activeDirty = true;
     }
     if (this.key !== before) this.options.trace?.switched?.(this.timeS, before, this.key, this.w);
@@ -1633,7 +1643,7 @@ export class Simulation {
       timeS: this.timeS,
       state: new Float64Array(this.w),
       stateNames: this.c.stateNames,
-      counters: { ...this.counters },
+      counters: { ...this.counters, topologies: this.model.topologyCount },
       integrals: ints,
       topologyKey: this.key,
       topology: describeKey(this.c, this.key),
