@@ -45,7 +45,7 @@ export function compareSections(r: CompareResult): Section[] {
         columns: ['signal', 'switching circuit', 'first-order estimate |dx/dt on| D T'],
         rows: Object.entries(r.ripple).map(([s, v]) => [s, fmt(v.switching, unitOf(s)), v.firstOrderEstimate === null ? '(not a state)' : fmt(v.firstOrderEstimate, unitOf(s))]),
       },
-      notes: ['The averaged model has no ripple; the estimate is the small-ripple slope of each state during the on-interval at the DC point (zero where the ripple is second order).'],
+      notes: ['The averaged model has no ripple; the estimate is its straight-line (small-ripple) approximation, Erickson and Maksimovic ch. 2.'],
     },
     {
       heading: `Frequency response: ${r.settings.output} per ${inputText}`,
@@ -65,7 +65,7 @@ export function compareSections(r: CompareResult): Section[] {
         columns: ['frequency', 'averaged [dB]', 'switching [dB]', 'error [dB]', 'averaged [deg]', 'switching [deg]', 'error [deg]'],
         rows: r.points.map((p) => [fmt(p.frequencyHz, 'Hz'), p.averaged.magnitudeDb.toFixed(3), p.switching.magnitudeDb.toFixed(3), p.errorDb.toFixed(4), p.averaged.phaseDeg.toFixed(2), p.switching.phaseDeg.toFixed(2), p.errorDeg.toFixed(3)]),
       },
-      notes: ['Switching circuit: exact small-signal response of the periodic steady state (sampled-data, Verghese, Elbuluk and Kassakian 1986); averaged model: CCM state-space average (Middlebrook and Cuk 1976).'],
+      notes: ['Comparison by the models\' validateAveragedModel. Switching circuit: exact small-signal response of the periodic steady state (sampled-data, Verghese, Elbuluk and Kassakian 1986); averaged model: CCM state-space average (Middlebrook and Cuk 1976).'],
     },
   ];
   const ls = r.loadStep;
@@ -80,10 +80,8 @@ export function compareSections(r: CompareResult): Section[] {
         title: `${ls.output}: averaged model and switching circuit`,
         xLabel: 'time', xUnit: 's', yLabel: ls.output, yUnit: u,
         series: [
-          { name: 'averaged model', x: ls.timesS, y: ls.averaged },
-          { name: 'switching: per-cycle average', x: ls.timesS, y: ls.switchingAverage, step: true },
-          { name: 'switching: per-cycle min', x: ls.timesS, y: ls.switchingMin, step: true, dashed: true },
-          { name: 'switching: per-cycle max', x: ls.timesS, y: ls.switchingMax, step: true, dashed: true },
+          { name: 'averaged model (cycle averages)', x: ls.timesS, y: ls.averaged },
+          { name: 'switching circuit (cycle averages)', x: ls.timesS, y: ls.switchingAverage, dashed: true },
         ],
       }],
       table: { columns: ['response', 'before', 'final', 'overshoot', 'undershoot', 'settling (2 % band)'], rows: [row('averaged model', ls.figures.averaged), row('switching circuit (cycle averages)', ls.figures.switching)] },

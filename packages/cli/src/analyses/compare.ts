@@ -10,20 +10,17 @@
  * off topologies (models' `ccmAveragedModel`).
  * @module
  */
-import { CircuitModel, expmAugmented, type CircuitSpec, type ControlContext, type Controller, type ElementSpec } from '@edgewise/engine';
+import { CircuitModel, type CircuitSpec, type ControlContext, type Controller, type ElementSpec } from '@edgewise/engine';
 import {
   ccmAveragedModel,
-  frequencyResponseOf,
   measureCycles,
   periodicSteadyState,
-  sampledDataResponse,
-  stepFigures,
-  topologyKeyOf,
+  validateAveragedModel,
   type CcmAveragedModel,
-  type ResponsePoint,
   type StepFigures,
   type SteadyState,
   type SwitchingSystem,
+  type ValidationReport,
 } from '@edgewise/models';
 import { InputError, RunFailure } from '../errors.ts';
 import type { Plan } from '../scenario/build.ts';
@@ -74,19 +71,17 @@ export interface ComparePoint {
 /** A load-step transient: per-cycle averages of the switching circuit and samples of the averaged model. */
 export interface LoadStepResult {
   readonly amps: number;
-  /** The stage output voltage signal. */
+  /** The compared output signal. */
   readonly output: string;
   readonly stepS: number;
-  /** Cycle mid times, seconds. */
+  /** Centres of the switching periods, seconds. */
   readonly timesS: number[];
-  /** Per-cycle average, min and max of the output in the switching circuit. */
+  /** Per-cycle averages of the output in the switching circuit (exact integrals). */
   readonly switchingAverage: number[];
-  readonly switchingMin: number[];
-  readonly switchingMax: number[];
-  /** The averaged model's output at the cycle mid times. */
+  /** Exact cycle averages of the averaged model's response. */
   readonly averaged: number[];
   readonly figures: { readonly averaged: StepFigures; readonly switching: StepFigures };
-  /** Largest |averaged - per-cycle average| after the step, in the output's unit. */
+  /** Largest |averaged - switching| cycle average after the step, in the output's unit. */
   readonly maxDeviation: number;
 }
 
@@ -101,7 +96,7 @@ export interface CompareResult {
   readonly steadyState: SteadyState;
   readonly conductionMode: string | null;
   readonly dc: Readonly<Record<string, SideBySide>>;
-  /** Peak-to-peak ripple: the switching circuit's, and the first-order estimate |dx/dt on| D T for states. */
+  /** Peak-to-peak ripple: the switching circuit's exact one and the model's straight-line estimate. */
   readonly ripple: Readonly<Record<string, { readonly switching: number; readonly firstOrderEstimate: number | null }>>;
   readonly points: ComparePoint[];
   readonly loadStep: LoadStepResult | undefined;
@@ -112,13 +107,6 @@ export interface CompareResult {
 export function logFrequencies(fromHz: number, toHz: number, points: number): number[] {
   const a = Math.log10(fromHz), b = Math.log10(toHz);
   return Array.from({ length: points }, (_, i) => 10 ** (a + ((b - a) * i) / (points - 1)));
-}
-
-function wrapDeg(d: number): number {
-  let x = d % 360;
-  if (x > 180) x -= 360;
-  if (x <= -180) x += 360;
-  return x;
 }
 
 /** Reads the compare settings of a scenario; InputError with the JSON path on bad values. */
@@ -267,49 +255,6 @@ function compareCircuit(plant: StagePlant, duty: number, where: string): Compare
   };
 }
 
-/** Averaged output row (over w = [x; u] of the full circuit) of a signal: D r_on + (1 - D) r_off. */
-function averagedRow(model: CircuitModel, cc: CompareCircuit, duty: number, signal: string): Float64Array {
-  const r1 = model.topology(topologyKeyOf(model, cc.on)).signalRow(signal);
-  const r2 = model.topology(topologyKeyOf(model, cc.off)).signalRow(signal);
-  return r1.map((v, j) => duty * v + (1 - duty) * r2[j]!);
-}
-
-/** Output of the averaged model after a step of the output current source, sampled at `timesS` (measured from the step). */
-function averagedStep(model: CircuitModel, cc: CompareCircuit, avg: CcmAveragedModel, duty: number, amps: number, timesS: readonly number[]): number[] {
-  const c = model.circuit;
-  const nx = avg.stateNames.length, nu = c.nu;
-  const idx = avg.stateNames.map((n) => c.stateNames.indexOf(n));
-  const u = c.initialState.slice(c.nx);
-  u[c.inputNames.indexOf(LOAD_STEP_SOURCE)]! += amps;
-  const row = averagedRow(model, cc, duty, cc.output);
-  const n = c.nx + nu;
-  return timesS.map((t) => {
-    const x = new Float64Array(nx);
-    if (t > 0) {
-      // exact solution of the linear averaged model from its DC point: [x; u](t) = expm([[A, B], [0, 0]] t) [X; u]
-      const E = expmAugmented(avg.a, avg.b, nx, nu, t);
-      const m = nx + nu;
-      for (let i = 0; i < nx; i++) {
-        let s = 0;
-        for (let j = 0; j < nx; j++) s += E[i * m + j]! * avg.dcState[j]!;
-        for (let j = 0; j < nu; j++) s += E[i * m + nx + j]! * u[j]!;
-        x[i] = s;
-      }
-    } else x.set(avg.dcState);
-    const w = new Float64Array(n);
-    idx.forEach((k, i) => (w[k] = x[i]!));
-    w.set(t > 0 ? u : c.initialState.slice(c.nx), c.nx);
-    let y = 0;
-    for (let j = 0; j < n; j++) y += row[j]! * w[j]!;
-    return y;
-  });
-}
-
-function sideBySide(averaged: number, switching: number): SideBySide {
-  const error = averaged - switching;
-  return { averaged, switching, error, relativeError: switching !== 0 ? error / Math.abs(switching) : Number.NaN };
-}
-
 /**
  * Runs the comparison of a plan whose scenario is an open-loop stage. Throws InputError (exit 2)
  * for an unsuitable scenario and RunFailure (exit 1) when the switching circuit has no periodic
@@ -331,92 +276,52 @@ export function compareAveragedModel(plan: Plan, where: string): CompareResult {
 
   let avg: CcmAveragedModel;
   try {
-    avg = ccmAveragedModel(model, { on: cc.on, off: cc.off, duty });
+    avg = ccmAveragedModel(model, { on: cc.on, off: cc.off, duty, periodS: cc.periodS });
   } catch (err) {
     throw new RunFailure(`averaged model: ${(err as Error).message}`);
   }
-
-  // DC point and ripple over one steady-state period.
-  const signals = [...new Set([settings.output, cc.output, cc.inductorCurrent])];
+  // Conduction mode of the steady-state period (the CCM model does not apply otherwise).
   const init = Object.fromEntries(ss.stateNames.map((n, i) => [n, ss.state[i]!]));
-  const period = measureCycles(cc.sys, { stopS: ss.periodS, signals, inductorCurrent: cc.inductorCurrent, initialState: init });
-  if (period.run.status === 'failed') throw new RunFailure(`simulation failed (${period.run.error?.code ?? 'failed'}): ${period.run.message}`);
-  const cyc = period.cycles[0]!;
-  const mode = cyc.mode;
+  const period = measureCycles(cc.sys, { stopS: ss.periodS, signals: [cc.inductorCurrent], inductorCurrent: cc.inductorCurrent, initialState: init });
+  const mode = period.cycles[0]?.mode ?? null;
   if (mode !== null && mode !== 'ccm') warnings.push(`the switching circuit is not in CCM (${mode}): the CCM averaged model does not apply`);
-  const dc: Record<string, SideBySide> = {};
-  const ripple: Record<string, { switching: number; firstOrderEstimate: number | null }> = {};
-  const c = model.circuit;
-  const tOn = model.topology(topologyKeyOf(model, cc.on));
-  const wDc = new Float64Array(c.nx + c.nu);
-  avg.stateNames.forEach((n, i) => (wDc[c.stateNames.indexOf(n)] = avg.dcState[i]!));
-  wDc.set(c.initialState.slice(c.nx), c.nx);
-  for (const s of signals) {
-    dc[s] = sideBySide(avg.dcValue(s), cyc.signals[s]!.average);
-    // First-order (small-ripple) estimate for a state: its slope during the on-interval at the
-    // DC point times D T (Erickson and Maksimovic, ch. 2); zero where the ripple is second order.
-    const state = s === cc.inductorCurrent ? s : s === cc.output && !((plant.outputCapacitor.esrOhms ?? 0) > 0) ? 'C1.charge' : undefined;
-    let est: number | null = null;
-    if (state !== undefined) {
-      const k = c.stateNames.indexOf(state);
-      let slope = 0;
-      for (let j = 0; j < c.nx + c.nu; j++) slope += tOn.m[k * (c.nx + c.nu) + j]! * wDc[j]!;
-      est = Math.abs(slope) * duty * cc.periodS;
-    }
-    ripple[s] = { switching: cyc.signals[s]!.ripple, firstOrderEstimate: est };
-  }
 
-  // Frequency response.
   const source = settings.input === 'duty' ? DUTY_SOURCE : settings.input === 'line' ? 'VIN' : LOAD_STEP_SOURCE;
-  const tf = settings.input === 'duty' ? avg.controlToOutput(settings.output) : avg.inputToOutput(source, settings.output);
-  let sw: ResponsePoint[];
+  let report: ValidationReport;
   try {
-    sw = sampledDataResponse(model, ss, source, settings.output, settings.frequenciesHz);
-  } catch (err) {
-    throw new RunFailure(`frequency response of the switching circuit: ${(err as Error).message}`);
-  }
-  const av = frequencyResponseOf(tf, settings.frequenciesHz);
-  const points: ComparePoint[] = settings.frequenciesHz.map((f, i) => {
-    const a = av[i]!, s = sw[i]!;
-    return {
-      frequencyHz: f,
-      averaged: { magnitudeDb: a.magnitudeDb, phaseDeg: a.phaseDeg },
-      switching: { magnitudeDb: s.magnitudeDb, phaseDeg: s.phaseDeg },
-      errorDb: a.magnitudeDb - s.magnitudeDb,
-      errorDeg: wrapDeg(a.phaseDeg - s.phaseDeg),
-    };
-  });
-
-  // Load step from the steady state, a few periods in.
-  let loadStep: LoadStepResult | undefined;
-  if (settings.loadStep !== undefined) {
-    const { amps, cycles } = settings.loadStep;
-    const before = 10;
-    const stepS = before * cc.periodS;
-    const sys = cc.stepped(stepS, amps);
-    const rep = measureCycles(sys, { stopS: (before + cycles) * cc.periodS, signals: [cc.output], initialState: init });
-    if (rep.run.status === 'failed') throw new RunFailure(`load step: simulation failed (${rep.run.error?.code ?? 'failed'}): ${rep.run.message}`);
-    const mids = rep.cycles.map((k) => 0.5 * (k.startS + k.endS));
-    const swAvg = rep.cycles.map((k) => k.signals[cc.output]!.average);
-    const avgY = averagedStep(model, cc, avg, duty, amps, mids.map((t) => t - stepS));
-    let maxDev = 0;
-    mids.forEach((t, i) => {
-      if (t > stepS) maxDev = Math.max(maxDev, Math.abs(avgY[i]! - swAvg[i]!));
+    report = validateAveragedModel(cc.sys, avg, {
+      output: settings.output,
+      signals: [...new Set([settings.output, cc.output, cc.inductorCurrent])],
+      // the sawtooth is 0 to 1 V: one volt of the duty source is one unit of duty
+      response: { source, frequenciesHz: settings.frequenciesHz, ...(settings.input === 'duty' ? {} : { averaged: avg.inputToOutput(source, settings.output) }) },
+      ...(settings.loadStep !== undefined ? { step: { source: LOAD_STEP_SOURCE, value: settings.loadStep.amps, cyclesBefore: 10, cyclesAfter: settings.loadStep.cycles } } : {}),
     });
-    const fig = (v: number[]): StepFigures => stepFigures(mids, v, { stepS });
-    loadStep = {
-      amps,
-      output: cc.output,
-      stepS,
-      timesS: mids,
-      switchingAverage: swAvg,
-      switchingMin: rep.cycles.map((k) => k.signals[cc.output]!.min),
-      switchingMax: rep.cycles.map((k) => k.signals[cc.output]!.max),
-      averaged: avgY,
-      figures: { averaged: fig(avgY), switching: fig(swAvg) },
-      maxDeviation: maxDev,
-    };
+  } catch (err) {
+    throw new RunFailure(`averaged model against the switching circuit: ${(err as Error).message}`);
   }
+  const dc: Record<string, SideBySide> = {};
+  for (const d of report.dc) dc[d.signal] = { averaged: d.averaged, switching: d.switching, error: d.difference, relativeError: d.relativeDifference ?? Number.NaN };
+  const ripple: Record<string, { switching: number; firstOrderEstimate: number | null }> = {};
+  for (const r of report.ripple) ripple[r.signal] = { switching: r.switching, firstOrderEstimate: r.averagedEstimate };
+  const resp = report.response!;
+  const points: ComparePoint[] = resp.frequencyHz.map((f, i) => ({
+    frequencyHz: f,
+    averaged: { magnitudeDb: resp.averaged.magnitudeDb[i]!, phaseDeg: resp.averaged.phaseDeg[i]! },
+    switching: { magnitudeDb: resp.switching.magnitudeDb[i]!, phaseDeg: resp.switching.phaseDeg[i]! },
+    errorDb: resp.error.magnitudeDb[i]!,
+    errorDeg: resp.error.phaseDeg[i]!,
+  }));
+  const st = report.step;
+  const loadStep: LoadStepResult | undefined = st === null ? undefined : {
+    amps: st.toValue - st.fromValue,
+    output: st.output,
+    stepS: st.stepS,
+    timesS: st.timeS,
+    switchingAverage: st.switching,
+    averaged: st.averaged,
+    figures: { averaged: st.averagedFigures, switching: st.switchingFigures },
+    maxDeviation: st.error.slice(Math.round(st.stepS / cc.periodS)).reduce((m, e) => Math.max(m, Math.abs(e)), 0),
+  };
   return {
     settings,
     periodS: cc.periodS,
