@@ -1580,10 +1580,12 @@ export class Simulation {
   }
 
   private settleAndSwitch(before: number): void {
-    let t = this.key === this.topo.key ? this.topo : this.lookupTopology(this.key);
-    if (this.diodeCount !== 0 || t.heldInductors.length !== 0) {
+    // With diodes the key before settling may be ill-posed (a switch closing onto a conducting
+    // diode): look it up only after settle() has resolved the diodes.
+    let t: Topology | undefined = this.key === this.topo.key ? this.topo : undefined;
+    if (this.diodeCount !== 0 || (t ??= this.lookupTopology(this.key)).heldInductors.length !== 0) {
       this.settle();
-      if (this.key !== t.key) t = this.lookupTopology(this.key);
+      if (t === undefined || this.key !== t.key) t = this.key === this.topo.key ? this.topo : this.lookupTopology(this.key);
     }
     this.turnedOff = 0;
     if (t !== this.topo) {
