@@ -97,13 +97,14 @@ export function topologyKeyOf(model: CircuitModel, conducting: readonly string[]
 }
 
 /**
- * What every averaged model offers (CCM, DCM reduced and full order, peak current mode), so
- * that the validation report takes any of them. Signals are engine signal names of the
+ * What every averaged model offers (CCM, DCM reduced and full order), so
+ * that the validation report takes any of them (the peak current-mode model of Ridley 1991
+ * gives transfer functions only: see current-mode.ts). Signals are engine signal names of the
  * circuit the model was derived from; inputs are the circuit's inputs (u[0] = 1, then the
  * independent sources by id).
  */
 export interface AveragedModel {
-  readonly kind: 'ccm' | 'dcm-reduced' | 'dcm-full' | 'peak-current';
+  readonly kind: 'ccm' | 'dcm-reduced' | 'dcm-full';
   /** States of the averaged model (engine state names). */
   readonly stateNames: readonly string[];
   /** The circuit's inputs: "1" (constant), then the independent sources by id. */

@@ -51,3 +51,5 @@ export type {
 export { validateAveragedModel } from './validation.ts';
 export type { DcmAveragedModel, DcmAveragingOptions } from './dcm-averaging.ts';
 export { dcmAveragedModel } from './dcm-averaging.ts';
+export type { PeakCurrentModel, PeakCurrentModelOptions } from './current-mode.ts';
+export { peakCurrentModel } from './current-mode.ts';
