@@ -30,6 +30,8 @@ export interface PeakCurrentModelOptions {
   readonly periodS: number;
   /** Inductor current state whose peak is controlled, e.g. "L1.current". */
   readonly inductor: string;
+  /** Output capacitor state fed back through kr (default: the circuit's only capacitor, else required), e.g. "C1.charge". */
+  readonly capacitor?: string;
   /** Current-sense gain Ri, volts per ampere (default 1: the command is in amperes). */
   readonly senseGain?: number;
   /** Compensation ramp slope Se, volts per second in the sense signal's unit (default 0). */
@@ -142,8 +144,10 @@ export function peakCurrentModel(circuit: SwitchingSystem['circuit'], options: P
     const s2 = mul(s, s);
     return { re: 1 + s.re / (wn * qz) + s2.re / (wn * wn), im: s.im / (wn * qz) + s2.im / (wn * wn) };
   };
-  const outputSignal = c.spec.elements.find((e) => e.kind === 'capacitor');
-  const vOut = outputSignal === undefined ? null : `${outputSignal.id}.charge`;
+  const caps = c.spec.elements.filter((e) => e.kind === 'capacitor').map((e) => `${e.id}.charge`);
+  const vOut = o.capacitor ?? (caps.length === 1 ? caps[0]! : null);
+  if (vOut === null && caps.length > 1) throw new RangeError(`capacitor: name the output capacitor state; capacitors: ${caps.join(', ')}`);
+  if (vOut !== null && !caps.includes(vOut)) throw new RangeError(`capacitor: "${vOut}" is not a capacitor state; capacitors: ${caps.join(', ') || '(none)'}`);
   return {
     duty: D, stage: op.stage, fm, sn, sf, mc, qp, kf, kr, samplingGain: He,
     controlToOutput(sig) {
