@@ -73,7 +73,7 @@ export function runSections(plan: Plan, outcome: RunOutcome): Section[] {
   }
   const c = outcome.cycles;
   if (c !== undefined && c.startS.length > 1) {
-    const charts: Chart[] = plotGroups(plan).map((g) => {
+    const charts: Chart[] = plotGroups(plan).map((g): Chart => {
       const unit = plan.units[plan.record.indexOf(g.signals[0]!)] ?? '';
       return {
         title: `${g.title}: per-cycle mean, min and max`,
@@ -91,6 +91,31 @@ export function runSections(plan: Plan, outcome: RunOutcome): Section[] {
         }),
       };
     });
+    // ripple (max - min) per cycle, one chart per group of signals sharing a unit
+    for (const g of plotGroups(plan)) {
+      const sigs = g.signals.filter((x) => plan.record.includes(x));
+      if (sigs.length === 0) continue;
+      const unit = plan.units[plan.record.indexOf(sigs[0]!)] ?? '';
+      charts.push({
+        title: `${g.title}: ripple per cycle (max - min)`,
+        xLabel: 'cycle start', xUnit: 's', yLabel: 'peak to peak',
+        ...(unit !== '' ? { yUnit: unit } : {}),
+        series: sigs.map((sig) => {
+          const k = plan.record.indexOf(sig);
+          return { name: `${sig} ripple`, x: c.startS, y: c.max.map((r, i) => r[k]! - c.min[i]![k]!), step: true };
+        }),
+      });
+    }
+    if (c.duty.length > 0) {
+      charts.push({
+        title: 'Duty per cycle (main switch on-time over the cycle)', xLabel: 'cycle start', xUnit: 's', yLabel: 'duty',
+        series: [{ name: 'duty', x: c.startS, y: c.duty, step: true }],
+      });
+      charts.push({
+        title: 'Switching frequency per cycle (turn-ons over the cycle length)', xLabel: 'cycle start', xUnit: 's', yLabel: 'frequency', yUnit: 'Hz',
+        series: [{ name: 'switching frequency', x: c.startS, y: c.turnOns.map((n, i) => (c.spanS[i]! > 0 ? n / c.spanS[i]! : 0)), step: true }],
+      });
+    }
     const dcm = c.mode.filter((m) => m === 'DCM').length;
     sections.push({ heading: 'Per-cycle metrics', charts, notes: [`${c.startS.length} cycles, ${dcm} in DCM`] });
   }

@@ -69,6 +69,12 @@ export interface CycleSeries {
   mean: number[][];
   min: number[][];
   max: number[][];
+  /** Fraction of each cycle the main switch conducted (from the topology keys; empty without a main gate). */
+  duty: number[];
+  /** Turn-ons of the main switch in each cycle. */
+  turnOns: number[];
+  /** Length of each cycle, seconds. */
+  spanS: number[];
 }
 
 /** Thinned waveforms kept for plots. */
@@ -148,11 +154,13 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
   let ccm = 0;
   let dcm = 0;
   const keep = options.keepWaveforms === true;
-  const cyc: CycleSeries | undefined = keep && trackCycles ? { startS: [], mode: [], mean: [], min: [], max: [] } : undefined;
+  const cyc: CycleSeries | undefined = keep && trackCycles ? { startS: [], mode: [], mean: [], min: [], max: [], duty: [], turnOns: [], spanS: [] } : undefined;
   let cSum = new Float64Array(nSig);
   let cMin = new Float64Array(nSig).fill(Infinity);
   let cMax = new Float64Array(nSig).fill(-Infinity);
   let cStart = 0;
+  let cOn = 0;
+  let cTurnOns = 0;
   const closeCycle = (endS: number): void => {
     if (cycleIndex < 0) return;
     if (cycleDcm) dcm++;
@@ -164,6 +172,11 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
       cyc.mean.push(Array.from(cSum, (v) => (span > 0 ? v / span : Number.NaN)));
       cyc.min.push(Array.from(cMin));
       cyc.max.push(Array.from(cMax));
+      cyc.spanS.push(span);
+      if (mainMask !== 0) {
+        cyc.duty.push(span > 0 ? cOn / span : Number.NaN);
+        cyc.turnOns.push(cTurnOns);
+      }
     }
   };
 
@@ -205,6 +218,8 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
           cycleIndex = k;
           cycleDcm = false;
           cStart = timeS;
+          cOn = 0;
+          cTurnOns = 0;
           cSum = new Float64Array(nSig);
           cMin = new Float64Array(nSig).fill(Infinity);
           cMax = new Float64Array(nSig).fill(-Infinity);
@@ -212,7 +227,10 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
         if (kind !== SampleKind.Before && isHeld(key)) cycleDcm = true;
       }
       if (mainMask !== 0) {
+        // the key holds from the previous sample to this one
+        if (lastKey >= 0 && (lastKey & mainMask) !== 0 && any) cOn += timeS - prevT;
         if (lastKey >= 0 && (key & mainMask) !== 0 && (lastKey & mainMask) === 0) {
+          cTurnOns++;
           turnOns++;
           if (turnOns === 1) firstOn = timeS;
           lastOn = timeS;

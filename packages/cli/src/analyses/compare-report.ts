@@ -14,6 +14,21 @@ function fmt(v: number | null, unit: string): string {
   return unit === '' ? Number(v.toPrecision(6)).toString() : formatQuantity(v, unit, 5);
 }
 
+/** Phase continued across the +-180 degree cut (for plotting; the JSON keeps (-180, 180]). */
+function unwrap(deg: readonly number[]): number[] {
+  const out: number[] = [];
+  let shift = 0;
+  deg.forEach((d, i) => {
+    if (i > 0) {
+      const prev = deg[i - 1]!;
+      if (d - prev > 180) shift -= 360;
+      else if (d - prev < -180) shift += 360;
+    }
+    out.push(d + shift);
+  });
+  return out;
+}
+
 /** Sections of the comparison report. */
 export function compareSections(r: CompareResult): Section[] {
   const unitOf = (signal: string): string => r.units[signal] ?? '';
@@ -51,7 +66,7 @@ export function compareSections(r: CompareResult): Section[] {
       heading: `Frequency response: ${r.settings.output} per ${inputText}`,
       charts: [
         bode('Magnitude', 'magnitude [dB]', r.points.map((p) => p.averaged.magnitudeDb), r.points.map((p) => p.switching.magnitudeDb)),
-        bode('Phase', 'phase [deg]', r.points.map((p) => p.averaged.phaseDeg), r.points.map((p) => p.switching.phaseDeg)),
+        bode('Phase', 'phase [deg]', unwrap(r.points.map((p) => p.averaged.phaseDeg)), unwrap(r.points.map((p) => p.switching.phaseDeg))),
         {
           title: 'Averaged model minus switching circuit',
           xLabel: 'frequency', xUnit: 'Hz', yLabel: 'error [dB] / [deg]', xLog: true,

@@ -26,7 +26,7 @@ export const sweepCommand: Command = {
   ].join('\n'),
   options: [
     { name: 'out', value: 'FILE', help: 'result CSV (default: standard output)' },
-    { name: 'workers', value: 'N', help: 'worker threads (default: one per core; 1 runs in the main thread)' },
+    { name: 'workers', value: 'N', help: 'threads computing points, this one included (default: os.availableParallelism(); 1: no worker threads)' },
     { name: 'shard', value: 'K/N', help: 'compute only the points with index % N == K - 1' },
     { name: 'resume', help: 'skip points already in FILE.csv.journal or FILE.csv' },
     QUIET,

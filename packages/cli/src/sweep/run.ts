@@ -21,7 +21,7 @@ export interface SweepOptions {
   readonly out: string | undefined;
   /** Shard k of n (1-based), or undefined for all points. */
   readonly shard: { readonly k: number; readonly n: number } | undefined;
-  /** Worker threads (1: in this thread). */
+  /** Threads computing points, this one included (1: this thread only). */
   readonly workers: number;
   /** Skip points already in the journal (or in a finished output). */
   readonly resume: boolean;
@@ -94,21 +94,22 @@ function readDone(path: string, header: readonly string[]): Map<number, string[]
   return done;
 }
 
+/**
+ * Computes the points on `threads` threads: this one plus `threads - 1` workers, each started
+ * once and fed chunks of point indices from one queue until it is empty. This thread computes
+ * chunks too, so the workers' start-up (loading tsx and the sources, about a second each) is
+ * not idle time, and a sweep too small to amortise a worker is finished here before it is up.
+ */
 async function runPool(
   base: unknown,
   sweep: SweepSpec,
   indices: number[],
-  workers: number,
+  threads: number,
   onRows: (rows: string[][]) => void,
 ): Promise<void> {
   if (indices.length === 0) return;
-  if (workers <= 1) {
-    for (let i = 0; i < indices.length; i += 4) {
-      onRows(indices.slice(i, i + 4).map((p) => evaluatePoint(base, sweep, p)));
-    }
-    return;
-  }
-  const batch = Math.max(1, Math.min(16, Math.floor(indices.length / (workers * 8))));
+  // chunks: several per thread so the threads finish together, few enough to keep messages rare
+  const batch = Math.max(1, Math.min(16, Math.floor(indices.length / (threads * 8))));
   let next = 0;
   const take = (): number[] => {
     const b = indices.slice(next, next + batch);
@@ -116,27 +117,53 @@ async function runPool(
     return b;
   };
   const boot = new URL('./worker-boot.mjs', import.meta.url);
-  await Promise.all(
-    Array.from({ length: Math.min(workers, Math.ceil(indices.length / batch)) }, () =>
-      new Promise<void>((resolve, reject) => {
-        const w = new Worker(boot, { workerData: { base, sweep } });
-        const feed = (): void => {
-          const b = take();
-          if (b.length === 0) {
-            w.postMessage('exit');
-            return;
-          }
-          w.postMessage({ indices: b });
-        };
-        w.on('message', (m: { ready?: boolean; rows?: string[][] }) => {
-          if (m.rows !== undefined) onRows(m.rows);
-          feed();
-        });
-        w.on('error', reject);
-        w.on('exit', (code) => (code === 0 ? resolve() : reject(new Error(`sweep worker exited with status ${code}`))));
-      }),
-    ),
-  );
+  const workers: Worker[] = [];
+  let pending = 0; // chunks handed to workers and not yet back
+  let failure: Error | undefined;
+  let finished = false;
+  let wake: (() => void) | undefined;
+  const nWorkers = Math.min(threads - 1, Math.ceil(indices.length / batch) - 1);
+  for (let k = 0; k < nWorkers; k++) {
+    const w = new Worker(boot, { workerData: { base, sweep } });
+    workers.push(w);
+    const feed = (): void => {
+      const b = take();
+      if (b.length === 0) return;
+      pending++;
+      w.postMessage({ indices: b });
+    };
+    w.on('message', (m: { ready?: boolean; rows?: string[][] }) => {
+      if (m.rows !== undefined) {
+        onRows(m.rows);
+        pending--;
+      }
+      feed();
+      if (pending === 0) wake?.();
+    });
+    w.on('error', (err) => {
+      failure ??= err;
+      wake?.();
+    });
+    w.on('exit', (code) => {
+      if (!finished) {
+        failure ??= new Error(`sweep worker exited with status ${code}`);
+        wake?.();
+      }
+    });
+  }
+  try {
+    for (let b = take(); b.length > 0 && failure === undefined; b = take()) {
+      onRows(b.map((p) => evaluatePoint(base, sweep, p)));
+      // let the workers' messages in between chunks
+      await new Promise<void>((r) => setImmediate(r));
+    }
+    while (pending > 0 && failure === undefined) await new Promise<void>((r) => (wake = r));
+    if (failure !== undefined) throw failure;
+  } finally {
+    // workers still starting when the queue ran dry are not needed any more
+    finished = true;
+    await Promise.all(workers.map((w) => w.terminate()));
+  }
 }
 
 /** Runs (a shard of) a sweep and writes its rows sorted by point index. */
@@ -183,7 +210,7 @@ export async function runSweep(base: unknown, sweep: SweepSpec, options: SweepOp
   return { points: all.length, computed: fresh.length, reused: done.size, ok: count('ok'), failed: count('failed'), invalid: count('invalid') };
 }
 
-/** Default number of workers: one per core. */
+/** Default number of threads: os.availableParallelism(). */
 export function defaultWorkers(): number {
   return availableParallelism();
 }
