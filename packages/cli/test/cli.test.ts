@@ -120,7 +120,7 @@ describe('sweeps', () => {
     const whole = join(tmp, 'whole.csv');
     const shards = [1, 2, 3].map((k) => join(tmp, `shard-${k}.csv`));
     const runs = await Promise.all([
-      cli(['sweep', scen, '--out', whole, '--workers', '2', '--quiet']),
+      cli(['sweep', scen, '--out', whole, '--workers', '2', '--report', join(tmp, 'sweep.html'), '--chart', 'signals.out.mean', '--quiet']),
       ...shards.map((s, k) => cli(['sweep', scen, '--shard', `${k + 1}/3`, '--out', s, '--workers', '1', '--quiet'])),
     ]);
     runs.forEach((r) => expect(r.code, r.stderr).toBe(0));
@@ -129,6 +129,9 @@ describe('sweeps', () => {
     expect(m.code, m.stderr).toBe(0);
     expect(readFileSync(merged, 'utf8')).toBe(readFileSync(whole, 'utf8'));
     expect(readFileSync(whole, 'utf8').split('\r\n').length).toBe(12 + 2); // header, 12 points, final CRLF
+    const html = readFileSync(join(tmp, 'sweep.html'), 'utf8');
+    expect(html).toContain('Outputs against /plant/drive/duty');
+    expect(html.match(/<svg/g)?.length).toBe(1);
 
     // Resume: a journal holding some finished rows (one torn) is completed to the same file.
     const resumed = join(tmp, 'resumed.csv');

@@ -8,6 +8,7 @@ import { ensureDir, writeFileAtomic } from '../io.ts';
 import { buildPlan } from '../scenario/build.ts';
 import { loadScenarioFile } from '../scenario/load.ts';
 import { mergeSweepFiles } from '../sweep/merge.ts';
+import { renderSweepReport } from '../sweep/report.ts';
 import { pointCount } from '../sweep/points.ts';
 import { checkSweepPaths, defaultWorkers, parseShard, runSweep } from '../sweep/run.ts';
 import { HELP, QUIET, say, scenarioArg, type Command } from './common.ts';
@@ -15,7 +16,7 @@ import { HELP, QUIET, say, scenarioArg, type Command } from './common.ts';
 export const sweepCommand: Command = {
   name: 'sweep',
   summary: 'grid sweeps and seeded Monte Carlo runs over scenario parameters; one CSV row per point',
-  usage: 'edgewise sweep FILE [--out FILE.csv] [--workers N] [--shard K/N] [--resume] [--quiet]',
+  usage: 'edgewise sweep FILE [--out FILE.csv] [--workers N] [--shard K/N] [--resume] [--report FILE.html [--x PATH] [--chart COLUMNS]] [--quiet]',
   details: [
     'The scenario\'s "sweep" section lists grid axes and Monte Carlo variations, each addressing a',
     'parameter by JSON Pointer (RFC 6901; inside arrays an item may be named by its id, e.g.',
@@ -29,10 +30,13 @@ export const sweepCommand: Command = {
     { name: 'workers', value: 'N', help: 'threads computing points, this one included (default: os.availableParallelism(); 1: no worker threads)' },
     { name: 'shard', value: 'K/N', help: 'compute only the points with index % N == K - 1' },
     { name: 'resume', help: 'skip points already in FILE.csv.journal or FILE.csv' },
+    { name: 'report', value: 'FILE', help: 'HTML report: outputs against a grid parameter' },
+    { name: 'x', value: 'PATH', help: 'grid parameter of the report\'s x axis (default: the first grid axis)' },
+    { name: 'chart', value: 'COLUMNS', help: 'comma-separated outputs to chart (default: all outputs)' },
     QUIET,
     HELP,
   ],
-  example: 'edgewise sweep examples/pol-sweep.json --out out/sweep.csv --shard 1/4',
+  example: 'edgewise sweep examples/pol-sweep.json --out out/sweep.csv --report out/sweep.html --chart signals.out.mean',
   async run(args: ParsedArgs) {
     const file = scenarioArg(args, 'sweep');
     const quiet = optFlag(args, 'quiet');
@@ -47,6 +51,13 @@ export const sweepCommand: Command = {
     const out = optValue(args, 'out');
     const resume = optFlag(args, 'resume');
     if (resume && out === undefined) throw new InputError('edgewise sweep', ['--resume needs --out (the journal lives next to the output)']);
+    const report = optValue(args, 'report');
+    const chart = optValue(args, 'chart');
+    const choice = { x: optValue(args, 'x'), columns: chart === undefined ? undefined : chart.split(',').map((c) => c.trim()).filter((c) => c !== '') };
+    if (report !== undefined) {
+      // check the choice before any point is computed
+      renderSweepReport(file, scenario.sweep, [], [], choice);
+    }
     const result = await runSweep(raw, scenario.sweep, {
       out,
       shard: shardText === undefined ? undefined : parseShard(shardText),
@@ -54,6 +65,10 @@ export const sweepCommand: Command = {
       resume,
       quiet,
     });
+    if (report !== undefined) {
+      ensureDir(report);
+      writeFileAtomic(report, renderSweepReport(scenario.name ?? file, scenario.sweep, result.header, result.rows, choice));
+    }
     say(quiet, `sweep: ${result.points} of ${pointCount(scenario.sweep)} points (${result.ok} ok, ${result.failed} failed, ${result.invalid} invalid; ${result.reused} reused)${out !== undefined ? `, wrote ${out}` : ''}`);
     return 0;
   },

@@ -36,6 +36,9 @@ export interface SweepResult {
   readonly ok: number;
   readonly failed: number;
   readonly invalid: number;
+  /** Header and rows (sorted by point index) as written. */
+  readonly header: readonly string[];
+  readonly rows: readonly (readonly string[])[];
 }
 
 /** Parses "K/N" with 1 <= K <= N. */
@@ -207,7 +210,7 @@ export async function runSweep(base: unknown, sweep: SweepSpec, options: SweepOp
   }
   const statusCol = header.length - 2;
   const count = (s: string): number => all.filter((r) => r[statusCol] === s).length;
-  return { points: all.length, computed: fresh.length, reused: done.size, ok: count('ok'), failed: count('failed'), invalid: count('invalid') };
+  return { points: all.length, computed: fresh.length, reused: done.size, ok: count('ok'), failed: count('failed'), invalid: count('invalid'), header, rows: all };
 }
 
 /** Default number of threads: os.availableParallelism(). */
