@@ -30,6 +30,8 @@ export interface PeakCurrentModelOptions {
   readonly periodS: number;
   /** Inductor current state whose peak is controlled, e.g. "L1.current". */
   readonly inductor: string;
+  /** Input voltage source, whose perturbation enters the modulator through kf (default "VIN"). */
+  readonly input?: string;
   /** Output capacitor state fed back through kr (default: the circuit's only capacitor, else required), e.g. "C1.charge". */
   readonly capacitor?: string;
   /** Current-sense gain Ri, volts per ampere (default 1: the command is in amperes). */
@@ -66,6 +68,11 @@ export interface PeakCurrentModel {
   readonly samplingGain: TransferFunction;
   /** Control voltage vc -> signal. */
   controlToOutput(signal: string): TransferFunction;
+  /**
+   * Independent source -> signal with the current loop closed (vc held): line-to-output from
+   * the input source (through kf), output impedance from a current source at the output.
+   */
+  inputToOutput(source: string, signal: string): TransferFunction;
 }
 
 const mul = (a: { re: number; im: number }, b: { re: number; im: number }) => ({ re: a.re * b.re - a.im * b.im, im: a.re * b.im + a.im * b.re });
@@ -148,22 +155,44 @@ export function peakCurrentModel(circuit: SwitchingSystem['circuit'], options: P
   const vOut = o.capacitor ?? (caps.length === 1 ? caps[0]! : null);
   if (vOut === null && caps.length > 1) throw new RangeError(`capacitor: name the output capacitor state; capacitors: ${caps.join(', ')}`);
   if (vOut !== null && !caps.includes(vOut)) throw new RangeError(`capacitor: "${vOut}" is not a capacitor state; capacitors: ${caps.join(', ') || '(none)'}`);
+  const inputId = o.input ?? 'VIN';
+  if (c.inputNames.indexOf(inputId) <= 0) throw new RangeError(`input: unknown independent source "${inputId}"; sources: ${c.inputNames.slice(1).join(', ')}`);
+  const gid = op.stage.controlToOutput(o.inductor);
+  const gvd = vOut === null ? null : op.stage.controlToOutput(vOut);
+  /** 1 + Fm (Ri He Gid - kr Gvd): the return difference of the current loop. */
+  const returnDiff = (s: { re: number; im: number }): { re: number; im: number } => {
+    let loop = mul({ re: Ri, im: 0 }, mul(He(s), gid(s)));
+    if (gvd !== null) {
+      const g = gvd(s);
+      loop = { re: loop.re - kr * g.re, im: loop.im - kr * g.im };
+    }
+    return { re: 1 + fm * loop.re, im: fm * loop.im };
+  };
   return {
     duty: D, stage: op.stage, fm, sn, sf, mc, qp, kf, kr, samplingGain: He,
+    inputToOutput(source, sig) {
+      const gys = op.stage.inputToOutput(source, sig);
+      const gyd = op.stage.controlToOutput(sig);
+      const gis = op.stage.inputToOutput(source, o.inductor);
+      const gvs = vOut === null ? null : op.stage.inputToOutput(source, vOut);
+      const ff = source === inputId ? kf : 0;
+      return (s) => {
+        // d = Fm (-Ri He i + kf vg + kr v) with i, v driven by the source and by d
+        let num = mul({ re: -Ri, im: 0 }, mul(He(s), gis(s)));
+        num = { re: num.re + ff, im: num.im };
+        if (gvs !== null) {
+          const g = gvs(s);
+          num = { re: num.re + kr * g.re, im: num.im + kr * g.im };
+        }
+        const dps = div({ re: fm * num.re, im: fm * num.im }, returnDiff(s));
+        const y = gys(s), yd = mul(gyd(s), dps);
+        return { re: y.re + yd.re, im: y.im + yd.im };
+      };
+    },
     controlToOutput(sig) {
       const gyd = op.stage.controlToOutput(sig);
-      const gid = op.stage.controlToOutput(o.inductor);
-      const gvd = vOut === null ? null : op.stage.controlToOutput(vOut);
-      return (s) => {
-        // d = Fm (vc - Ri He iL + kr v): d / vc = Fm / (1 + Fm (Ri He Gid - kr Gvd))
-        let loop = mul({ re: Ri, im: 0 }, mul(He(s), gid(s)));
-        if (gvd !== null) {
-          const g = gvd(s);
-          loop = { re: loop.re - kr * g.re, im: loop.im - kr * g.im };
-        }
-        const dvc = div({ re: fm, im: 0 }, { re: 1 + fm * loop.re, im: fm * loop.im });
-        return mul(gyd(s), dvc);
-      };
+      // d = Fm (vc - Ri He iL + kr v): d / vc = Fm / (1 + Fm (Ri He Gid - kr Gvd))
+      return (s) => mul(gyd(s), div({ re: fm, im: 0 }, returnDiff(s)));
     },
   };
 }
