@@ -66,6 +66,23 @@ export function runSections(plan: Plan, outcome: RunOutcome): Section[] {
   }
   if (s.efficiency !== undefined) notes.push(`efficiency: ${(s.efficiency * 100).toFixed(3)} %`);
   sections.push({ heading: 'Summary', table: { columns: ['signal', 'mean', 'RMS', 'min', 'max', 'peak to peak', 'final'], rows }, notes });
+  const losses = s.losses;
+  if (losses !== undefined) {
+    const rows: (string | number)[][] = losses.conduction.map((c) => [c.element, `conduction (${c.part})`, fmt(c.watts, 'W')]);
+    for (const sw of losses.switching ?? []) {
+      const parts = [['turn-on', sw.turnOnW], ['turn-off', sw.turnOffW], ['output capacitance', sw.outputCapacitanceW], ['reverse recovery', sw.reverseRecoveryW], ['gate drive', sw.gateDriveW]] as const;
+      for (const [name, w] of parts) if (w > 0) rows.push([sw.device, `switching (${name})`, fmt(w, 'W')]);
+    }
+    sections.push({
+      heading: 'Losses over the window',
+      table: { columns: ['element', 'loss', 'average power'], rows },
+      notes: [
+        `conduction ${fmt(losses.conductionW, 'W')}${losses.switchingW !== undefined ? `, switching ${fmt(losses.switchingW, 'W')} (accounted per transition, not fed back into the circuit)` : ''}, total ${fmt(losses.totalW, 'W')}`,
+        ...(losses.efficiencyWithSwitching !== undefined ? [`efficiency with switching losses: ${(100 * losses.efficiencyWithSwitching).toFixed(3)} %`] : []),
+        'Conduction losses are exact integrals of the run; loads and elements named in run.powers are left out.',
+      ],
+    });
+  }
   sections.push({ heading: 'Waveforms over the window', charts: waveformCharts(plan, outcome, s.window.fromS, s.window.toS) });
   if (s.periodS !== undefined && (s.cycles ?? 0) > 4) {
     const from = Math.max(s.window.fromS, s.window.toS - 4 * s.periodS);
