@@ -126,5 +126,8 @@ describe('validation report: averaged model beside the switching circuit', () =>
     expect(() => validateAveragedModel(sys, avg, { output: 'out', response: { source: 'R', frequenciesHz: [1e3] } })).toThrow(/response.source: "R" is not an independent source/);
     expect(() => validateAveragedModel(sys, avg, { output: 'out', step: { source: 'ILOAD', value: Number.NaN, cyclesAfter: 10 } })).toThrow(/step.value must be a finite number/);
     expect(() => validateAveragedModel(sys, avg, { output: 'out', step: { source: 'ILOAD', value: 1, cyclesAfter: 1 } })).toThrow(/step.cyclesAfter/);
+    // a model that yields NaN is reported with the path of the value, never passed on
+    const broken = { ...avg, dcValue: () => Number.NaN };
+    expect(() => validateAveragedModel(sys, broken, { output: 'out' })).toThrow(/report\.dc\[0\]\.averaged is NaN/);
   });
 });

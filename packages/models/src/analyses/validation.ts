@@ -266,5 +266,18 @@ export function validateAveragedModel(sys: SwitchingSystem, averaged: AveragedMo
       switchingFigures: fig(switching), averagedFigures: fig(avgWave),
     };
   }
-  return { modelKind: averaged.kind, output: o.output, periodS: T, dc, ripple, response, step };
+  const report: ValidationReport = { modelKind: averaged.kind, output: o.output, periodS: T, dc, ripple, response, step };
+  checkFinite(report, 'report');
+  return report;
+}
+
+/** Throws naming the first non-finite number of the report (a model that returned NaN, say). */
+function checkFinite(v: unknown, path: string): void {
+  if (typeof v === 'number') {
+    if (!Number.isFinite(v)) throw new Error(`${path} is ${String(v)}: the averaged model or the switching run produced a non-finite value there`);
+  } else if (Array.isArray(v)) {
+    for (let i = 0; i < v.length; i++) checkFinite(v[i], `${path}[${i}]`);
+  } else if (v !== null && typeof v === 'object') {
+    for (const [k, x] of Object.entries(v)) checkFinite(x, `${path}.${k}`);
+  }
 }
