@@ -6,7 +6,7 @@
 import type { StepFigures } from '@edgewise/models';
 import type { Chart, Section } from '../plot.ts';
 import { formatQuantity } from '../units.ts';
-import type { CompareResult } from './compare.ts';
+import { modelText, type CompareResult } from './compare.ts';
 
 function fmt(v: number | null, unit: string): string {
   if (v === null) return '';
@@ -80,7 +80,7 @@ export function compareSections(r: CompareResult): Section[] {
         columns: ['frequency', 'averaged [dB]', 'switching [dB]', 'error [dB]', 'averaged [deg]', 'switching [deg]', 'error [deg]'],
         rows: r.points.map((p) => [fmt(p.frequencyHz, 'Hz'), p.averaged.magnitudeDb.toFixed(3), p.switching.magnitudeDb.toFixed(3), p.errorDb.toFixed(4), p.averaged.phaseDeg.toFixed(2), p.switching.phaseDeg.toFixed(2), p.errorDeg.toFixed(3)]),
       },
-      notes: ['Comparison by the models\' validateAveragedModel. Switching circuit: exact small-signal response of the periodic steady state (sampled-data, Verghese, Elbuluk and Kassakian 1986); averaged model: CCM state-space average (Middlebrook and Cuk 1976).'],
+      notes: [`Comparison by the models' validateAveragedModel. Switching circuit: exact small-signal response of the periodic steady state (sampled-data, Verghese, Elbuluk and Kassakian 1986); averaged model: ${modelText(r.modelKind)}.`],
     },
   ];
   const ls = r.loadStep;

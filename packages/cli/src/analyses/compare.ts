@@ -1,6 +1,7 @@
 /**
  * The averaged model against the switching circuit it was derived from, for an open-loop stage
- * plant: DC point, ripple, small-signal frequency response and a load-step transient.
+ * plant: DC point, ripple, small-signal frequency response and a load-step transient, with the
+ * CCM or DCM averaged model (chosen by the conduction mode of the steady state unless named).
  *
  * The switching side is the stage itself with its open-loop duty produced by a comparator (a
  * 0-to-1 V sawtooth against a control source held at the duty), so that a perturbation of that
@@ -13,10 +14,11 @@
 import { CircuitModel, type CircuitSpec, type ControlContext, type Controller, type ElementSpec } from '@edgewise/engine';
 import {
   ccmAveragedModel,
+  dcmAveragedModel,
   measureCycles,
   periodicSteadyState,
   validateAveragedModel,
-  type CcmAveragedModel,
+  type AveragedModel,
   type StepFigures,
   type SteadyState,
   type SwitchingSystem,
@@ -45,6 +47,8 @@ export interface CompareSettings {
   readonly output: string;
   readonly frequenciesHz: readonly number[];
   readonly loadStep: { readonly amps: number; readonly cycles: number } | undefined;
+  /** Averaged model: by the conduction mode of the steady state ('auto'), or the one named. */
+  readonly model: 'auto' | 'ccm' | 'dcm-reduced' | 'dcm-full';
 }
 
 /** A value of the averaged model next to the switching circuit's. */
@@ -90,6 +94,8 @@ export interface CompareResult {
   readonly settings: CompareSettings;
   readonly periodS: number;
   readonly duty: number;
+  /** The averaged model compared. */
+  readonly modelKind: AveragedModel['kind'];
   readonly inductorCurrent: string;
   /** Units of the signals compared ('' when dimensionless). */
   readonly units: Readonly<Record<string, string>>;
@@ -131,6 +137,7 @@ export function compareSettings(scenario: Scenario, plan: Plan, where: string): 
     output: c.output ?? stage.signals.outputVoltage,
     frequenciesHz: freqs,
     loadStep: c.loadStep === undefined ? undefined : { amps: c.loadStep.amps, cycles: c.loadStep.cycles ?? 300 },
+    model: c.model ?? 'auto',
   };
 }
 
@@ -274,17 +281,21 @@ export function compareAveragedModel(plan: Plan, where: string): CompareResult {
   if (ss.status !== 'converged') throw new RunFailure(`steady state ${ss.status}: ${ss.message}`);
   if (ss.stability !== 'stable') warnings.push(`the switching circuit's orbit is ${ss.stability} (spectral radius ${ss.spectralRadius.toPrecision(4)})`);
 
-  let avg: CcmAveragedModel;
-  try {
-    avg = ccmAveragedModel(model, { on: cc.on, off: cc.off, duty, periodS: cc.periodS });
-  } catch (err) {
-    throw new RunFailure(`averaged model: ${(err as Error).message}`);
-  }
-  // Conduction mode of the steady-state period (the CCM model does not apply otherwise).
+  // Conduction mode of the steady-state period picks (or checks) the averaged model.
   const init = Object.fromEntries(ss.stateNames.map((n, i) => [n, ss.state[i]!]));
   const period = measureCycles(cc.sys, { stopS: ss.periodS, signals: [cc.inductorCurrent], inductorCurrent: cc.inductorCurrent, initialState: init });
   const mode = period.cycles[0]?.mode ?? null;
-  if (mode !== null && mode !== 'ccm') warnings.push(`the switching circuit is not in CCM (${mode}): the CCM averaged model does not apply`);
+  const kind = settings.model === 'auto' ? (mode === 'dcm' ? 'dcm-full' : 'ccm') : settings.model;
+  if (kind === 'ccm' && mode !== null && mode !== 'ccm') warnings.push(`the switching circuit is not in CCM (${mode}): the CCM averaged model does not apply`);
+  if (kind !== 'ccm' && mode !== 'dcm') warnings.push(`the switching circuit is not in DCM (${mode ?? 'unknown'}): the DCM averaged model does not apply`);
+  let avg: AveragedModel;
+  try {
+    avg = kind === 'ccm'
+      ? ccmAveragedModel(model, { on: cc.on, off: cc.off, duty, periodS: cc.periodS })
+      : dcmAveragedModel(model, { order: kind === 'dcm-full' ? 'full' : 'reduced', on: cc.on, off: cc.off, duty, periodS: cc.periodS, inductor: cc.inductorCurrent });
+  } catch (err) {
+    throw new RunFailure(`averaged model (${kind}): ${(err as Error).message}`);
+  }
 
   const source = settings.input === 'duty' ? DUTY_SOURCE : settings.input === 'line' ? 'VIN' : LOAD_STEP_SOURCE;
   let report: ValidationReport;
@@ -326,6 +337,7 @@ export function compareAveragedModel(plan: Plan, where: string): CompareResult {
     settings,
     periodS: cc.periodS,
     duty,
+    modelKind: avg.kind,
     inductorCurrent: cc.inductorCurrent,
     units: Object.fromEntries(model.listSignals().map((x) => [x.name, x.unit === '1' ? '' : x.unit])),
     steadyState: ss,
@@ -338,6 +350,17 @@ export function compareAveragedModel(plan: Plan, where: string): CompareResult {
   };
 }
 
+const MODEL_TEXT: Record<AveragedModel['kind'], string> = {
+  ccm: 'CCM state-space average (Middlebrook and Cuk 1976)',
+  'dcm-reduced': 'DCM average, reduced order (inductor dynamics neglected)',
+  'dcm-full': 'DCM average, full order (Sun et al. 2001)',
+};
+
+/** Description of an averaged model kind. */
+export function modelText(kind: AveragedModel['kind']): string {
+  return MODEL_TEXT[kind];
+}
+
 /** The summary JSON of a comparison. */
 export function compareJson(r: CompareResult, scenario: string): Record<string, unknown> {
   const maxAbs = (xs: number[]): number => xs.reduce((m, x) => Math.max(m, Math.abs(x)), 0);
@@ -345,7 +368,7 @@ export function compareJson(r: CompareResult, scenario: string): Record<string, 
   return {
     scenario,
     analysis: 'compare',
-    averagedModel: 'CCM state-space average (Middlebrook and Cuk 1976)',
+    averagedModel: MODEL_TEXT[r.modelKind],
     periodS: r.periodS,
     duty: r.duty,
     steadyState: { stability: r.steadyState.stability, spectralRadius: r.steadyState.spectralRadius, iterations: r.steadyState.iterations },

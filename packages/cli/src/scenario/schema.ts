@@ -195,6 +195,8 @@ const analysesSchema = z.strictObject({
     input: z.enum(['duty', 'line', 'load-current']).optional()
       .meta({ description: 'perturbed input: duty (default; per unit of duty), line (per volt of input), load-current (per ampere drawn from the output)' }),
     output: signal.optional().meta({ description: 'response signal (default: the stage output voltage)' }),
+    model: z.enum(['auto', 'ccm', 'dcm-reduced', 'dcm-full']).optional()
+      .meta({ description: 'averaged model: auto (default: CCM, or full-order DCM when the steady state is in DCM), ccm, dcm-reduced or dcm-full' }),
     frequencies: z.array(quantity('Hz', 'positive')).min(1).optional().meta({ description: 'frequencies of the response (instead of a log range)' }),
     fromHz: quantity('Hz', 'positive', 'start of the log range (default fs / 1000)').optional(),
     toHz: quantity('Hz', 'positive', 'end of the log range (default fs / 5)').optional(),
