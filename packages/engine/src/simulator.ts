@@ -322,7 +322,7 @@ export class Simulation {
   /** bit set of armed controller guards (guards beyond 30 fall back to a version counter) */
   private armKey = 0;
   private readonly activeCache = new Map<number, Map<number, ActiveGuard[]>>();
-  private readonly deviceGuards = new Map<number, ActiveGuard[]>();
+  private readonly guardRowCache = new Map<number, (ActiveGuard | undefined)[]>();
   // recording
   private readonly recRefs: LinearRef[];
   private readonly recRows = new Map<number, Float64Array[]>();
@@ -568,138 +568,142 @@ export class Simulation {
   // ----------------------------------------------------------------------------------------
   // controller context
 
-  private makeContext(): ControlContext {
-    // eslint-disable-next-line @typescript-eslint/no-this-alias
-    const sim = this;
-    const signals: LinearRef[] = [];
-    const rowCache = new Map<number, Float64Array[]>();
-    // a class (not an object literal with accessors) so that V8 keeps the context's shape fast
-    class Ctx implements ControlContext {
-      get timeS(): number {
-        return sim.timeS;
+  /**
+   * The controller context: one class for every run (a class, not an object literal with
+   * accessors, and not one class per run, so that call sites in controllers stay monomorphic).
+   * Declared inside Simulation so that it may use the run's private state.
+   */
+  private static readonly Context = class implements ControlContext {
+    readonly signals: LinearRef[] = [];
+    readonly rowCache = new Map<number, Float64Array[]>();
+    constructor(private readonly sim: Simulation) {}
+    get timeS(): number {
+      return this.sim.timeS;
+    }
+    get cycle(): number {
+      return this.sim.cyc;
+    }
+    get offsetS(): number {
+      return this.sim.off;
+    }
+    get timeBaseS(): number {
+      return this.sim.tb;
+    }
+    signal(name: string): number {
+      this.signals.push(this.sim.resolveOrThrow(name, 'controller signal'));
+      return this.signals.length - 1;
+    }
+    read(h: number): number {
+      // the topology in force just before the event (gates set at this event are not yet
+      // settled, and the raw key may even be ill-posed until consistent switching runs)
+      const key = this.sim.topo !== undefined ? this.sim.topo.key : this.sim.key;
+      let rows = this.rowCache.get(key);
+      if (rows === undefined) {
+        rows = [];
+        this.rowCache.set(key, rows);
       }
-      get cycle(): number {
-        return sim.cyc;
+      let r = rows[h];
+      if (r === undefined) {
+        const t = this.sim.model.topology(key);
+        r = rows[h] = t.row(this.signals[h]!);
       }
-      get offsetS(): number {
-        return sim.off;
-      }
-      get timeBaseS(): number {
-        return sim.tb;
-      }
-      signal(name: string): number {
-        signals.push(sim.resolveOrThrow(name, 'controller signal'));
-        return signals.length - 1;
-      }
-      read(h: number): number {
-        // the topology in force just before the event (gates set at this event are not yet
-        // settled, and the raw key may even be ill-posed until consistent switching runs)
-        const key = sim.topo !== undefined ? sim.topo.key : sim.key;
-        let rows = rowCache.get(key);
-        if (rows === undefined) {
-          rows = [];
-          rowCache.set(key, rows);
-        }
-        let r = rows[h];
-        if (r === undefined) {
-          const t = sim.model.topology(key);
-          r = rows[h] = t.row(signals[h]!);
-        }
-        let s = 0;
-        const w = sim.w;
-        for (let j = 0; j < r.length; j++) s += r[j]! * w[j]!;
-        return s;
-      }
-      gate(name: string): number {
-        const g = sim.c.gates.indexOf(name);
-        if (g < 0) throw new RangeError(`unknown gate "${name}"; gates: ${sim.c.gates.join(', ') || '(none)'}`);
-        return g;
-      }
-      setGate(g: number, on: boolean): void {
-        const mask = sim.gateMask[g]!;
-        if (on) {
-          sim.gateOn[g] = 1;
-          sim.key |= mask;
-        } else {
-          if (sim.key & mask) sim.turnedOff |= sim.key & mask;
-          sim.gateOn[g] = 0;
-          sim.key &= ~mask;
-        }
-      }
-      isGateOn(g: number): boolean {
-        return sim.gateOn[g] === 1;
-      }
-      at(tag: number, cycle: number, offsetS: number): void {
-        if (!Number.isInteger(cycle) || !Number.isFinite(offsetS)) throw new RangeError(`timer ${tag}: cycle must be an integer and offsetS finite, got ${String(cycle)}, ${String(offsetS)}`);
-        if ((cycle - sim.cyc) * sim.tb + (offsetS - sim.off) < 0) {
-          throw new RangeError(`timer ${tag}: scheduled in the past (cycle ${cycle} + ${offsetS} s is before t = ${sim.timeS} s)`);
-        }
-        sim.removeTimer(tag);
-        sim.push(cycle, offsetS, KIND_TIMER, tag);
-      }
-      after(tag: number, delayS: number): void {
-        if (!(delayS >= 0 && delayS < Infinity)) throw new RangeError(`timer ${tag}: delay must be a finite time >= 0 s, got ${String(delayS)}`);
-        sim.removeTimer(tag);
-        sim.push(sim.cyc, sim.off + delayS, KIND_TIMER, tag);
-      }
-      cancel(tag: number): void {
-        sim.removeTimer(tag);
-      }
-      guard(spec: GuardSpec): number {
-        if (!sim.inStart) throw new Error('guards are defined in Controller.start');
-        const terms = spec.terms ?? (spec.signal !== undefined ? [{ signal: spec.signal, gain: 1 }] : []);
-        if (terms.length === 0) throw new RangeError('a guard needs a signal or terms');
-        const mna = new Map<number, number>();
-        const w = new Map<number, number>();
-        for (const t of terms) {
-          const r = sim.resolveOrThrow(t.signal, 'guard');
-          r.mna.forEach((g, k) => mna.set(k, (mna.get(k) ?? 0) + g * t.gain));
-          r.w.forEach((g, k) => w.set(k, (w.get(k) ?? 0) + g * t.gain));
-        }
-        const thr = spec.threshold ?? 0;
-        if (!Number.isFinite(thr)) throw new RangeError(`guard threshold must be finite, got ${String(thr)}`);
-        if (thr !== 0) w.set(sim.nx, (w.get(sim.nx) ?? 0) - thr);
-        sim.guardRefs.push({ mna, w });
-        sim.guardThreshold.push(thr);
-        sim.guardDir.push(spec.direction === 'rising' ? 1 : spec.direction === 'falling' ? -1 : 0);
-        const armed = new Int32Array(sim.guardRefs.length);
-        armed.set(sim.guardArmed);
-        sim.guardArmed = armed;
-        const tags = new Float64Array(sim.guardRefs.length);
-        tags.set(sim.guardTag);
-        sim.guardTag = tags;
-        return sim.guardRefs.length - 1;
-      }
-      arm(g: number, tag: number): void {
-        if (sim.guardArmed[g] !== 1 || sim.guardTag[g] !== tag) {
-          sim.guardArmed[g] = 1;
-          sim.guardTag[g] = tag;
-          sim.activeDirty = true;
-          sim.armKey = g < 30 ? sim.armKey | (1 << g) : sim.armKey + 2 ** 31;
-        }
-      }
-      disarm(g: number): void {
-        if (sim.guardArmed[g] === 1) {
-          sim.guardArmed[g] = 0;
-          sim.activeDirty = true;
-          sim.armKey = g < 30 ? sim.armKey & ~(1 << g) : sim.armKey + 2 ** 31;
-        }
-      }
-      block(id: string): number {
-        const b = sim.c.blocks.find((x) => x.id === id);
-        if (b === undefined) throw new RangeError(`unknown block "${id}"`);
-        return b.firstState;
-      }
-      setBlockState(b: number, value: number, index = 0): void {
-        if (!Number.isFinite(value)) throw new RangeError(`block state value must be finite, got ${String(value)}`);
-        sim.w[b + index] = value;
-        sim.options.trace?.reset?.(sim.timeS, b + index, value);
-      }
-      stop(message: string): void {
-        sim.stopRequest = message;
+      let s = 0;
+      const w = this.sim.w;
+      for (let j = 0; j < r.length; j++) s += r[j]! * w[j]!;
+      return s;
+    }
+    gate(name: string): number {
+      const g = this.sim.c.gates.indexOf(name);
+      if (g < 0) throw new RangeError(`unknown gate "${name}"; gates: ${this.sim.c.gates.join(', ') || '(none)'}`);
+      return g;
+    }
+    setGate(g: number, on: boolean): void {
+      const mask = this.sim.gateMask[g]!;
+      if (on) {
+        this.sim.gateOn[g] = 1;
+        this.sim.key |= mask;
+      } else {
+        if (this.sim.key & mask) this.sim.turnedOff |= this.sim.key & mask;
+        this.sim.gateOn[g] = 0;
+        this.sim.key &= ~mask;
       }
     }
-    return new Ctx();
+    isGateOn(g: number): boolean {
+      return this.sim.gateOn[g] === 1;
+    }
+    at(tag: number, cycle: number, offsetS: number): void {
+      if (!Number.isInteger(cycle) || !Number.isFinite(offsetS)) throw new RangeError(`timer ${tag}: cycle must be an integer and offsetS finite, got ${String(cycle)}, ${String(offsetS)}`);
+      if ((cycle - this.sim.cyc) * this.sim.tb + (offsetS - this.sim.off) < 0) {
+        throw new RangeError(`timer ${tag}: scheduled in the past (cycle ${cycle} + ${offsetS} s is before t = ${this.sim.timeS} s)`);
+      }
+      this.sim.removeTimer(tag);
+      this.sim.push(cycle, offsetS, KIND_TIMER, tag);
+    }
+    after(tag: number, delayS: number): void {
+      if (!(delayS >= 0 && delayS < Infinity)) throw new RangeError(`timer ${tag}: delay must be a finite time >= 0 s, got ${String(delayS)}`);
+      this.sim.removeTimer(tag);
+      this.sim.push(this.sim.cyc, this.sim.off + delayS, KIND_TIMER, tag);
+    }
+    cancel(tag: number): void {
+      this.sim.removeTimer(tag);
+    }
+    guard(spec: GuardSpec): number {
+      if (!this.sim.inStart) throw new Error('guards are defined in Controller.start');
+      const terms = spec.terms ?? (spec.signal !== undefined ? [{ signal: spec.signal, gain: 1 }] : []);
+      if (terms.length === 0) throw new RangeError('a guard needs a signal or terms');
+      const mna = new Map<number, number>();
+      const w = new Map<number, number>();
+      for (const t of terms) {
+        const r = this.sim.resolveOrThrow(t.signal, 'guard');
+        r.mna.forEach((g, k) => mna.set(k, (mna.get(k) ?? 0) + g * t.gain));
+        r.w.forEach((g, k) => w.set(k, (w.get(k) ?? 0) + g * t.gain));
+      }
+      const thr = spec.threshold ?? 0;
+      if (!Number.isFinite(thr)) throw new RangeError(`guard threshold must be finite, got ${String(thr)}`);
+      if (thr !== 0) w.set(this.sim.nx, (w.get(this.sim.nx) ?? 0) - thr);
+      this.sim.guardRefs.push({ mna, w });
+      this.sim.guardThreshold.push(thr);
+      this.sim.guardDir.push(spec.direction === 'rising' ? 1 : spec.direction === 'falling' ? -1 : 0);
+      const armed = new Int32Array(this.sim.guardRefs.length);
+      armed.set(this.sim.guardArmed);
+      this.sim.guardArmed = armed;
+      const tags = new Float64Array(this.sim.guardRefs.length);
+      tags.set(this.sim.guardTag);
+      this.sim.guardTag = tags;
+      return this.sim.guardRefs.length - 1;
+    }
+    arm(g: number, tag: number): void {
+      if (this.sim.guardArmed[g] !== 1 || this.sim.guardTag[g] !== tag) {
+        this.sim.guardArmed[g] = 1;
+        this.sim.guardTag[g] = tag;
+        this.sim.activeDirty = true;
+        this.sim.armKey = g < 30 ? this.sim.armKey | (1 << g) : this.sim.armKey + 2 ** 31;
+      }
+    }
+    disarm(g: number): void {
+      if (this.sim.guardArmed[g] === 1) {
+        this.sim.guardArmed[g] = 0;
+        this.sim.activeDirty = true;
+        this.sim.armKey = g < 30 ? this.sim.armKey & ~(1 << g) : this.sim.armKey + 2 ** 31;
+      }
+    }
+    block(id: string): number {
+      const b = this.sim.c.blocks.find((x) => x.id === id);
+      if (b === undefined) throw new RangeError(`unknown block "${id}"`);
+      return b.firstState;
+    }
+    setBlockState(b: number, value: number, index = 0): void {
+      if (!Number.isFinite(value)) throw new RangeError(`block state value must be finite, got ${String(value)}`);
+      this.sim.w[b + index] = value;
+      this.sim.options.trace?.reset?.(this.sim.timeS, b + index, value);
+    }
+    stop(message: string): void {
+      this.sim.stopRequest = message;
+    }
+  };
+
+  private makeContext(): ControlContext {
+    return new Simulation.Context(this);
   }
 
   // ----------------------------------------------------------------------------------------
@@ -744,7 +748,8 @@ export class Simulation {
       }
       return;
     }
-    let dg = this.deviceGuards.get(t.key);
+    // device guards depend only on the topology: kept on it, shared by every run of the model
+    let dg = t.deviceGuards as ActiveGuard[] | undefined;
     if (dg === undefined) {
       dg = [];
       const c = this.c;
@@ -765,22 +770,21 @@ export class Simulation {
         g.owner = -(d + 1);
         dg.push(g);
       }
-      this.deviceGuards.set(t.key, dg);
+      t.deviceGuards = dg;
     }
     const act = dg.slice();
     for (let g = 0; g < this.guardRefs.length; g++) {
       if (this.guardArmed[g] !== 1) continue;
-      let row = t.guardRows[g];
-      let ag: ActiveGuard;
-      if (row === undefined) {
-        row = t.guardRows[g] = t.row(this.guardRefs[g]!);
-        ag = this.guardRowsFor(t, row);
-        t.guardDerivRows[g] = ag.drow;
-        (t as unknown as { guardD4Rows: Float64Array[] }).guardD4Rows ??= [];
-        (t as unknown as { guardD4Rows: Float64Array[] }).guardD4Rows[g] = ag.d4row;
-      } else {
-        ag = { row, drow: t.guardDerivRows[g]!, d4row: (t as unknown as { guardD4Rows: Float64Array[] }).guardD4Rows[g]!, dir: 0, owner: 0 };
+      // controller guards belong to this run (another run of the same model may number its
+      // guards differently): their rows are cached per run and topology
+      let rows = this.guardRowCache.get(t.key);
+      if (rows === undefined) {
+        rows = [];
+        this.guardRowCache.set(t.key, rows);
       }
+      let base = rows[g];
+      if (base === undefined) base = rows[g] = this.guardRowsFor(t, t.row(this.guardRefs[g]!));
+      const ag: ActiveGuard = { row: base.row, drow: base.drow, d4row: base.d4row, dir: 0, owner: 0 };
       ag.dir = this.guardDir[g]!;
       ag.owner = g;
       act.push(ag);

@@ -51,14 +51,12 @@ export class Topology {
   private readonly N: number;
   /** propagator cache: duration -> top nx rows of expm(M h) */
   readonly cache = new Map<number, Float64Array>();
+  /** the diode guards of this topology (built by the simulator, shared by runs) */
+  deviceGuards: unknown = undefined;
   /** durations seen once (a second sighting caches their propagator) */
   readonly seenOnce = new Set<number>();
   lastH = Number.NaN;
   lastE: Float64Array | null = null;
-  /** per-guard rows (value and derivative), filled lazily by the simulator */
-  readonly guardRows: (Float64Array | undefined)[] = [];
-  readonly guardDerivRows: (Float64Array | undefined)[] = [];
-  readonly guardD4: number[] = [];
   /** cached E(k * baseStep) by k */
   readonly multiples = new Map<number, Float64Array>();
 

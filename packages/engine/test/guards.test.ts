@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { simulate, type CircuitSpec, type Controller } from '../src/index.ts';
+import { CircuitModel, simulate, type CircuitSpec, type Controller } from '../src/index.ts';
 
 // LC tank: C dv/dt = -iL, L diL/dt = v, so v(t) = V cos(w t + phi) with w = 1/sqrt(LC)
 // (circuit theory, natural response of an undamped LC circuit; Nilsson and Riedel ch. 8).
@@ -75,5 +75,32 @@ describe('drift-free scheduling', () => {
     expect(r.status).toBe('finished');
     expect(edges).toBe(1e6 + 1); // k = 0 .. 10^6, the last one at the stop time
     expect(bad).toBe(0);
+  });
+});
+
+describe('runs sharing one compiled model', () => {
+  it('each run keeps its own guards (same guard number, different signals and thresholds)', () => {
+    const model = new CircuitModel(tank);
+    const period = (2 * Math.PI) / w;
+    const first = (thr: number, direction: 'rising' | 'falling'): number => {
+      let at = -1;
+      const r = simulate(model, {
+        stopS: period, timeBaseS: period,
+        controller: {
+          start(ctx) {
+            ctx.arm(ctx.guard({ signal: 'a', threshold: thr, direction }), 1);
+          },
+          onEvent(ctx) {
+            if (at < 0) at = ctx.timeS;
+          },
+        },
+      });
+      expect(r.status).toBe('finished');
+      return at;
+    };
+    // v = cos(w t + phi0): rising through 0.99 at (-acos(0.99) - phi0)/w, falling through -0.5 at (acos(-0.5) - phi0)/w (closed form)
+    expect(Math.abs(first(0.99, 'rising') - tStar)).toBeLessThan(1e-12 * period);
+    expect(Math.abs(first(-0.5, 'falling') - (Math.acos(-0.5) - phi0) / w)).toBeLessThan(1e-12 * period);
+    expect(Math.abs(first(0.99, 'rising') - tStar)).toBeLessThan(1e-12 * period);
   });
 });
