@@ -70,7 +70,7 @@ describe('compare', () => {
 
   it('names the JSON path of unsuitable scenarios', () => {
     const closed = { ...buck, plant: { ...buck.plant, control: { kind: 'voltage-mode', referenceVolts: 1, compensator: { kind: 'poles-zeros', integratorRadPerS: 1000, zerosHz: [], polesHz: [] } } } };
-    expect(() => compareAveragedModel(plan(closed), 'f.json')).toThrow(/plant\.control\.kind: compare needs an open-loop stage/);
+    expect(() => compareAveragedModel(plan(closed), 'f.json')).toThrow(/plant\.control\.kind: compare needs an open-loop or peak-current stage/);
     expect(() => compareAveragedModel(plan({ ...buck, analyses: { compare: { frequencies: [1e3, 150e3] } } }), 'f.json')).toThrow(/analyses\.compare\.frequencies\[1\]: must be below half the switching frequency/);
     expect(() => compareAveragedModel(plan({ ...buck, analyses: { compare: { output: 'nope' } } }), 'f.json')).toThrow(InputError);
   });

@@ -40,7 +40,7 @@ export function compareSections(r: CompareResult): Section[] {
       { name: 'switching circuit (sampled-data)', x: f, y: sw, dashed: true },
     ],
   });
-  const inputText = r.settings.input === 'duty' ? 'duty' : r.settings.input === 'line' ? 'input voltage' : 'current drawn from the output';
+  const inputText = r.settings.input === 'duty' || r.settings.input === 'control' ? (r.modelKind === 'peak-current' ? 'current command' : 'duty') : r.settings.input === 'line' ? 'input voltage' : 'current drawn from the output';
   const sections: Section[] = [
     {
       heading: 'DC operating point',

@@ -3,12 +3,14 @@
  * plant: DC point, ripple, small-signal frequency response and a load-step transient, with the
  * CCM or DCM averaged model (chosen by the conduction mode of the steady state unless named).
  *
- * The switching side is the stage itself with its open-loop duty produced by a comparator (a
- * 0-to-1 V sawtooth against a control source held at the duty), so that a perturbation of that
- * source is a perturbation of the duty the sampled-data analysis can follow through the guard;
+ * The switching side is the stage itself with its duty produced by a comparator against a control
+ * source (open loop: a 0-to-1 V sawtooth against the duty; peak current mode: the sensed current
+ * plus the compensation ramp against the command), so that a perturbation of that source is
+ * one the sampled-data analysis can follow through the guard;
  * a zero-ampere current source at the output carries the load step and the output-impedance
  * perturbation. The averaged side is the CCM state-space average of the same circuit's on and
- * off topologies (models' `ccmAveragedModel`).
+ * off topologies (models' `ccmAveragedModel`, `dcmAveragedModel`), or Ridley's current-mode
+ * model on it (`peakCurrentModel`).
  * @module
  */
 import { CircuitModel, type CircuitSpec, type ControlContext, type Controller, type ElementSpec } from '@edgewise/engine';
@@ -16,12 +18,14 @@ import {
   ccmAveragedModel,
   dcmAveragedModel,
   measureCycles,
+  peakCurrentModel,
   periodicSteadyState,
   validateAveragedModel,
   type AveragedModel,
   type StepFigures,
   type SteadyState,
   type SwitchingSystem,
+  type TransferFunction,
   type ValidationReport,
 } from '@edgewise/models';
 import { InputError, RunFailure } from '../errors.ts';
@@ -30,16 +34,16 @@ import { buildStagePlant } from '../scenario/build-stage.ts';
 import type { Scenario } from '../scenario/schema.ts';
 import type { StagePlant } from '../scenario/stage-schema.ts';
 
-/** Id of the control source whose voltage is the duty (0-to-1 V sawtooth). */
-export const DUTY_SOURCE = 'VDUTY';
-/** Node of the duty control source. */
-export const DUTY_NODE = 'dutyctl';
+/** Id of the control source: the duty (open loop, against a 0-to-1 V sawtooth) or the current command (peak current mode), volts. */
+export const CONTROL_SOURCE = 'VCTL';
+/** Node of the control source. */
+export const CONTROL_NODE = 'ctl';
 /** Id of the output current source used for the load step and the output impedance. */
 export const LOAD_STEP_SOURCE = 'ISTEP';
-const RAMP = 'DUTYRAMP';
+const RAMP = 'CTLRAMP';
 
 /** Which input the frequency response perturbs. */
-export type CompareInput = 'duty' | 'line' | 'load-current';
+export type CompareInput = 'control' | 'duty' | 'line' | 'load-current';
 
 /** Resolved settings of a comparison (SI units). */
 export interface CompareSettings {
@@ -95,7 +99,7 @@ export interface CompareResult {
   readonly periodS: number;
   readonly duty: number;
   /** The averaged model compared. */
-  readonly modelKind: AveragedModel['kind'];
+  readonly modelKind: CompareModelKind;
   readonly inductorCurrent: string;
   /** Units of the signals compared ('' when dimensionless). */
   readonly units: Readonly<Record<string, string>>;
@@ -133,7 +137,7 @@ export function compareSettings(scenario: Scenario, plan: Plan, where: string): 
   });
   if (problems.length > 0) throw new InputError(where, [...new Set(problems)]);
   return {
-    input: c.input ?? 'duty',
+    input: c.input ?? 'control',
     output: c.output ?? stage.signals.outputVoltage,
     frequenciesHz: freqs,
     loadStep: c.loadStep === undefined ? undefined : { amps: c.loadStep.amps, cycles: c.loadStep.cycles ?? 300 },
@@ -141,49 +145,78 @@ export function compareSettings(scenario: Scenario, plan: Plan, where: string): 
   };
 }
 
-/** Open-loop duty of a stage plant; InputError unless the plant is an open-loop stage. */
-function openLoopDuty(scenario: Scenario, where: string): { plant: StagePlant; duty: number } {
+/**
+ * How the switching circuit's duty is made: a sawtooth against a duty source (open loop), or
+ * the sensed inductor current plus a compensation ramp against a command source (peak current
+ * mode). Either way the perturbed source is an independent source of the circuit.
+ */
+type Modulator =
+  | { readonly kind: 'duty'; readonly duty: number }
+  | { readonly kind: 'peak-current'; readonly volts: number; readonly senseOhms: number; readonly slopeVPerS: number; readonly maxDuty: number };
+
+/** The stage plant and its modulator; InputError unless the plant is an open-loop or peak-current stage. */
+function modulatorOf(scenario: Scenario, where: string): { plant: StagePlant; modulator: Modulator } {
   const plant = scenario.plant;
   if (plant.kind !== 'stage') {
     throw new InputError(where, ['plant.kind: compare needs a stage plant (the averaged model is built from its on and off topologies)']);
   }
   const control = plant.control;
-  if (control.kind !== 'open-loop') {
-    throw new InputError(where, [`plant.control.kind: compare needs an open-loop stage (the averaged model covers the power stage only), received "${control.kind}"`]);
+  if (control.kind !== 'open-loop' && control.kind !== 'peak-current') {
+    throw new InputError(where, [`plant.control.kind: compare needs an open-loop or peak-current stage (the averaged models cover the power stage and the current loop), received "${control.kind}"`]);
   }
   if (control.lightLoad === 'diode-emulation' || control.currentLimit !== undefined) {
     throw new InputError(where, ['plant.control: compare does not model diode emulation or a current limit; remove lightLoad and currentLimit']);
+  }
+  if (control.kind === 'peak-current') {
+    const cmd = control.command;
+    if (cmd.kind !== 'fixed') throw new InputError(where, ['plant.control.command.kind: compare needs a fixed current command (the outer voltage loop is not part of the averaged model)']);
+    if (plant.converter === 'buck-boost') throw new InputError(where, ['plant.converter: the peak current-mode model covers buck and boost stages']);
+    const volts = cmd.volts ?? cmd.peakAmps! * control.senseOhms;
+    return { plant, modulator: { kind: 'peak-current', volts, senseOhms: control.senseOhms, slopeVPerS: control.slopeCompensationVPerS ?? 0, maxDuty: control.maxDuty ?? 0.95 } };
   }
   const duty = control.duty ?? control.dutySchedule?.[0]?.duty;
   if (duty === undefined || !(duty > 0 && duty < 1)) {
     throw new InputError(where, [`plant.control.duty: compare needs a duty strictly between 0 and 1, received ${String(duty)}`]);
   }
-  return { plant, duty };
+  return { plant, modulator: { kind: 'duty', duty } };
 }
 
 /**
- * Trailing-edge PWM from a comparator: the main gate turns on at each clock edge and the
- * sawtooth restarts; it turns off when the sawtooth rises through the duty source. A
- * synchronous switch follows with the stage's dead times.
+ * Clock-set, comparator-reset PWM: the main gate turns on at each clock edge and the ramp
+ * restarts; it turns off when the guard's terms rise through the control source (or at the
+ * longest on-time). A synchronous switch follows with the stage's dead times.
  */
-function comparatorDrive(main: string, sync: string | undefined, periodS: number, deadOnS: number, deadOffS: number): () => Controller {
-  const CLOCK = 1, SYNC_ON = 2, SYNC_OFF = 3, TRIP = 4;
+function comparatorDrive(
+  main: string, sync: string | undefined, periodS: number, deadOnS: number, deadOffS: number,
+  terms: readonly { signal: string; gain: number }[], ramp: string | undefined, maxOnS: number,
+): () => Controller {
+  const CLOCK = 1, SYNC_ON = 2, SYNC_OFF = 3, TRIP = 4, MAX_ON = 5;
   return () => {
-    let g = -1, c = -1, guard = -1, ramp = -1;
+    let g = -1, c = -1, guard = -1, r = -1;
+    const off = (ctx: ControlContext): void => {
+      ctx.setGate(g, false);
+      ctx.disarm(guard);
+      ctx.cancel(MAX_ON);
+      if (c >= 0) {
+        if (deadOnS > 0) ctx.after(SYNC_ON, deadOnS);
+        else ctx.setGate(c, true);
+      }
+    };
     const clock = (ctx: ControlContext, cycle: number): void => {
       if (c >= 0) ctx.setGate(c, false);
       ctx.setGate(g, true);
-      ctx.setBlockState(ramp, 0);
+      if (r >= 0) ctx.setBlockState(r, 0);
       ctx.arm(guard, TRIP);
       ctx.at(CLOCK, cycle + 1, 0);
+      if (maxOnS < periodS) ctx.at(MAX_ON, cycle, maxOnS);
       if (c >= 0 && deadOffS > 0) ctx.at(SYNC_OFF, cycle, periodS - deadOffS);
     };
     return {
       start(ctx) {
         g = ctx.gate(main);
         if (sync !== undefined) c = ctx.gate(sync);
-        ramp = ctx.block(RAMP);
-        guard = ctx.guard({ terms: [{ signal: `${RAMP}.out`, gain: 1 }, { signal: DUTY_NODE, gain: -1 }], threshold: 0, direction: 'rising' });
+        if (ramp !== undefined) r = ctx.block(ramp);
+        guard = ctx.guard({ terms: [...terms, { signal: CONTROL_NODE, gain: -1 }], threshold: 0, direction: 'rising' });
         clock(ctx, 0);
       },
       onEvent(ctx, tag) {
@@ -192,12 +225,8 @@ function comparatorDrive(main: string, sync: string | undefined, periodS: number
             clock(ctx, ctx.cycle);
             break;
           case TRIP:
-            ctx.setGate(g, false);
-            ctx.disarm(guard);
-            if (c >= 0) {
-              if (deadOnS > 0) ctx.after(SYNC_ON, deadOnS);
-              else ctx.setGate(c, true);
-            }
+          case MAX_ON:
+            off(ctx);
             break;
           case SYNC_ON:
             ctx.setGate(c, true);
@@ -211,11 +240,10 @@ function comparatorDrive(main: string, sync: string | undefined, periodS: number
   };
 }
 
-/** The comparison circuit: the stage (without scheduled steps) plus the duty source, the sawtooth and the output current source. */
+/** The comparison circuit: the stage (without scheduled steps) plus the control source, the ramp and the output current source. */
 interface CompareCircuit {
-  readonly spec: CircuitSpec;
   readonly sys: SwitchingSystem & { readonly circuit: CircuitModel };
-  readonly stepped: (atS: number, amps: number) => SwitchingSystem;
+  readonly converter: StagePlant['converter'];
   readonly on: readonly string[];
   readonly off: readonly string[];
   readonly inductorCurrent: string;
@@ -223,37 +251,38 @@ interface CompareCircuit {
   readonly periodS: number;
 }
 
-function compareCircuit(plant: StagePlant, duty: number, where: string): CompareCircuit {
+function compareCircuit(plant: StagePlant, mod: Modulator, where: string): CompareCircuit {
   // Steps belong to the run; the comparison sets its own load step.
   const load = plant.load.kind === 'resistor' ? { kind: 'resistor' as const, ohms: plant.load.ohms } : { kind: 'current' as const, amps: plant.load.amps };
   const { steps: _steps, ...input } = plant.input;
-  const base: StagePlant = { ...plant, input, load, control: { kind: 'open-loop', duty, ...(plant.control.kind === 'open-loop' && plant.control.deadTime !== undefined ? { deadTime: plant.control.deadTime } : {}) } };
+  const dt = plant.control.kind === 'open-loop' || plant.control.kind === 'peak-current' ? plant.control.deadTime : undefined;
+  const base: StagePlant = { ...plant, input, load, control: { kind: 'open-loop', duty: 0.5, ...(dt !== undefined ? { deadTime: dt } : {}) } };
   const { stage } = buildStagePlant(base, where);
   const T = stage.periodS;
   const out = stage.signals.outputVoltage;
   const extra: ElementSpec[] = [
-    { kind: 'voltage-source', id: DUTY_SOURCE, pos: DUTY_NODE, neg: '0', volts: duty },
+    { kind: 'voltage-source', id: CONTROL_SOURCE, pos: CONTROL_NODE, neg: '0', volts: mod.kind === 'duty' ? mod.duty : mod.volts },
     // a second terminal at the control node (the engine rejects single-terminal nodes); it draws
     // a current from the ideal source and nothing else
-    { kind: 'resistor', id: 'RDUTY', a: DUTY_NODE, b: '0', ohms: 1e6 },
+    { kind: 'resistor', id: 'RCTL', a: CONTROL_NODE, b: '0', ohms: 1e6 },
     { kind: 'current-source', id: LOAD_STEP_SOURCE, from: out, to: '0', amps: 0 },
   ];
+  const ramp = mod.kind === 'duty' || mod.slopeVPerS > 0 ? RAMP : undefined;
   const spec: CircuitSpec = {
     ...stage.circuit,
     elements: [...stage.circuit.elements, ...extra],
-    blocks: [...(stage.circuit.blocks ?? []), { kind: 'ramp', id: RAMP, slopePerS: 1 / T }],
+    blocks: [...(stage.circuit.blocks ?? []), ...(ramp !== undefined ? [{ kind: 'ramp' as const, id: RAMP, slopePerS: mod.kind === 'duty' ? 1 / T : mod.slopeVPerS }] : [])],
   };
-  const dt = plant.control.kind === 'open-loop' ? plant.control.deadTime : undefined;
-  const createController = comparatorDrive(stage.gates.main, stage.gates.sync, T, dt?.mainOffToSyncOnS ?? 0, dt?.syncOffToMainOnS ?? 0);
+  // open loop: a 0-to-1 V sawtooth, so one volt of the control source is one unit of duty
+  const terms = mod.kind === 'duty'
+    ? [{ signal: `${RAMP}.out`, gain: 1 }]
+    : [{ signal: stage.signals.inductorCurrent, gain: mod.senseOhms }, ...(ramp !== undefined ? [{ signal: `${RAMP}.out`, gain: 1 }] : [])];
+  const maxOn = mod.kind === 'duty' ? T : mod.maxDuty * T;
+  const createController = comparatorDrive(stage.gates.main, stage.gates.sync, T, dt?.mainOffToSyncOnS ?? 0, dt?.syncOffToMainOnS ?? 0, terms, ramp, maxOn);
   const sync = stage.rectification === 'synchronous';
   return {
-    spec,
     sys: { circuit: new CircuitModel(spec), createController, timeBaseS: T },
-    stepped: (atS, amps) => ({
-      circuit: { ...spec, elements: spec.elements.map((e) => (e.id === LOAD_STEP_SOURCE ? { ...e, steps: [{ atS, value: amps }] } as ElementSpec : e)) },
-      createController,
-      timeBaseS: T,
-    }),
+    converter: plant.converter,
     on: ['Q1'],
     off: [sync ? 'Q2' : 'D1'],
     inductorCurrent: stage.signals.inductorCurrent,
@@ -268,9 +297,9 @@ function compareCircuit(plant: StagePlant, duty: number, where: string): Compare
  * steady state or a run fails.
  */
 export function compareAveragedModel(plan: Plan, where: string): CompareResult {
-  const { plant, duty } = openLoopDuty(plan.scenario, where);
+  const { plant, modulator } = modulatorOf(plan.scenario, where);
   const settings = compareSettings(plan.scenario, plan, where);
-  const cc = compareCircuit(plant, duty, where);
+  const cc = compareCircuit(plant, modulator, where);
   const model = cc.sys.circuit;
   const known = model.listSignals().map((s) => s.name);
   if (!known.includes(settings.output)) {
@@ -285,27 +314,48 @@ export function compareAveragedModel(plan: Plan, where: string): CompareResult {
   const init = Object.fromEntries(ss.stateNames.map((n, i) => [n, ss.state[i]!]));
   const period = measureCycles(cc.sys, { stopS: ss.periodS, signals: [cc.inductorCurrent], inductorCurrent: cc.inductorCurrent, initialState: init });
   const mode = period.cycles[0]?.mode ?? null;
-  const kind = settings.model === 'auto' ? (mode === 'dcm' ? 'dcm-full' : 'ccm') : settings.model;
-  if (kind === 'ccm' && mode !== null && mode !== 'ccm') warnings.push(`the switching circuit is not in CCM (${mode}): the CCM averaged model does not apply`);
-  if (kind !== 'ccm' && mode !== 'dcm') warnings.push(`the switching circuit is not in DCM (${mode ?? 'unknown'}): the DCM averaged model does not apply`);
+  const source = settings.input === 'control' || settings.input === 'duty' ? CONTROL_SOURCE : settings.input === 'line' ? 'VIN' : LOAD_STEP_SOURCE;
   let avg: AveragedModel;
+  let kind: CompareModelKind;
+  let duty: number;
+  let responseTf: TransferFunction | undefined;
   try {
-    avg = kind === 'ccm'
-      ? ccmAveragedModel(model, { on: cc.on, off: cc.off, duty, periodS: cc.periodS })
-      : dcmAveragedModel(model, { order: kind === 'dcm-full' ? 'full' : 'reduced', on: cc.on, off: cc.off, duty, periodS: cc.periodS, inductor: cc.inductorCurrent });
+    if (modulator.kind === 'peak-current') {
+      if (settings.model !== 'auto' && settings.model !== 'ccm') throw new InputError(where, [`analyses.compare.model: peak current mode is compared with Ridley's CCM model, received "${settings.model}"`]);
+      kind = 'peak-current';
+      const pcm = peakCurrentModel(model, {
+        converter: cc.converter === 'boost' ? 'boost' : 'buck', on: cc.on, off: cc.off, periodS: cc.periodS,
+        inductor: cc.inductorCurrent, senseGain: modulator.senseOhms, rampSlope: modulator.slopeVPerS, command: CONTROL_SOURCE,
+      });
+      // DC point and ripple from the CCM stage at the current loop's operating duty
+      avg = pcm.stage;
+      duty = pcm.duty;
+      responseTf = source === CONTROL_SOURCE ? pcm.controlToOutput(settings.output) : pcm.inputToOutput(source, settings.output);
+      if (mode !== null && mode !== 'ccm') warnings.push(`the switching circuit is not in CCM (${mode}): the current-mode model does not apply`);
+      if (settings.loadStep !== undefined) warnings.push('load step: not compared in current mode (the validation steps the averaged stage at a fixed duty)');
+    } else {
+      duty = modulator.duty;
+      kind = settings.model === 'auto' ? (mode === 'dcm' ? 'dcm-full' : 'ccm') : settings.model;
+      if (kind === 'ccm' && mode !== null && mode !== 'ccm') warnings.push(`the switching circuit is not in CCM (${mode}): the CCM averaged model does not apply`);
+      if (kind !== 'ccm' && mode !== 'dcm') warnings.push(`the switching circuit is not in DCM (${mode ?? 'unknown'}): the DCM averaged model does not apply`);
+      avg = kind === 'ccm'
+        ? ccmAveragedModel(model, { on: cc.on, off: cc.off, duty, periodS: cc.periodS })
+        : dcmAveragedModel(model, { order: kind === 'dcm-full' ? 'full' : 'reduced', on: cc.on, off: cc.off, duty, periodS: cc.periodS, inductor: cc.inductorCurrent });
+      // the sawtooth is 0 to 1 V: one volt of the control source is one unit of duty
+      responseTf = source === CONTROL_SOURCE ? undefined : avg.inputToOutput(source, settings.output);
+    }
   } catch (err) {
-    throw new RunFailure(`averaged model (${kind}): ${(err as Error).message}`);
+    if (err instanceof InputError) throw err;
+    throw new RunFailure(`averaged model (${settings.model}): ${(err as Error).message}`);
   }
 
-  const source = settings.input === 'duty' ? DUTY_SOURCE : settings.input === 'line' ? 'VIN' : LOAD_STEP_SOURCE;
   let report: ValidationReport;
   try {
     report = validateAveragedModel(cc.sys, avg, {
       output: settings.output,
       signals: [...new Set([settings.output, cc.output, cc.inductorCurrent])],
-      // the sawtooth is 0 to 1 V: one volt of the duty source is one unit of duty
-      response: { source, frequenciesHz: settings.frequenciesHz, ...(settings.input === 'duty' ? {} : { averaged: avg.inputToOutput(source, settings.output) }) },
-      ...(settings.loadStep !== undefined ? { step: { source: LOAD_STEP_SOURCE, value: settings.loadStep.amps, cyclesBefore: 10, cyclesAfter: settings.loadStep.cycles } } : {}),
+      response: { source, frequenciesHz: settings.frequenciesHz, ...(responseTf !== undefined ? { averaged: responseTf } : {}) },
+      ...(settings.loadStep !== undefined && kind !== 'peak-current' ? { step: { source: LOAD_STEP_SOURCE, value: settings.loadStep.amps, cyclesBefore: 10, cyclesAfter: settings.loadStep.cycles } } : {}),
     });
   } catch (err) {
     throw new RunFailure(`averaged model against the switching circuit: ${(err as Error).message}`);
@@ -337,7 +387,7 @@ export function compareAveragedModel(plan: Plan, where: string): CompareResult {
     settings,
     periodS: cc.periodS,
     duty,
-    modelKind: avg.kind,
+    modelKind: kind,
     inductorCurrent: cc.inductorCurrent,
     units: Object.fromEntries(model.listSignals().map((x) => [x.name, x.unit === '1' ? '' : x.unit])),
     steadyState: ss,
@@ -350,21 +400,25 @@ export function compareAveragedModel(plan: Plan, where: string): CompareResult {
   };
 }
 
-const MODEL_TEXT: Record<AveragedModel['kind'], string> = {
+/** Averaged models a comparison uses. */
+export type CompareModelKind = 'ccm' | 'dcm-reduced' | 'dcm-full' | 'peak-current';
+
+const MODEL_TEXT: Record<CompareModelKind, string> = {
+  'peak-current': 'peak current mode (Ridley 1991) on the CCM averaged stage',
   ccm: 'CCM state-space average (Middlebrook and Cuk 1976)',
   'dcm-reduced': 'DCM average, reduced order (inductor dynamics neglected)',
   'dcm-full': 'DCM average, full order (Sun et al. 2001)',
 };
 
 /** Description of an averaged model kind. */
-export function modelText(kind: AveragedModel['kind']): string {
+export function modelText(kind: CompareModelKind): string {
   return MODEL_TEXT[kind];
 }
 
 /** The summary JSON of a comparison. */
 export function compareJson(r: CompareResult, scenario: string): Record<string, unknown> {
   const maxAbs = (xs: number[]): number => xs.reduce((m, x) => Math.max(m, Math.abs(x)), 0);
-  const unit = r.settings.input === 'duty' ? 'output unit per unit of duty' : r.settings.input === 'line' ? 'output unit per volt of input' : 'output unit per ampere drawn from the output';
+  const unit = r.settings.input === 'duty' || r.settings.input === 'control' ? (r.modelKind === 'peak-current' ? 'output unit per volt of current command' : 'output unit per unit of duty') : r.settings.input === 'line' ? 'output unit per volt of input' : 'output unit per ampere drawn from the output';
   return {
     scenario,
     analysis: 'compare',

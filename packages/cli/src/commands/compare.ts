@@ -15,13 +15,13 @@ import { HELP, QUIET, say, scenarioArg, type Command } from './common.ts';
 
 export const compareCommand: Command = {
   name: 'compare',
-  summary: 'averaged model versus switching circuit of an open-loop stage: DC point, ripple, frequency response, load step',
+  summary: 'averaged model versus switching circuit of an open-loop or peak-current stage: DC point, ripple, frequency response, load step',
   usage: 'edgewise compare FILE [--summary FILE.json|-] [--report FILE.html] [--quiet]',
   details: [
     'Settings come from the scenario\'s "analyses.compare": input ("duty", "line" or "load-current"),',
     'output signal, frequencies (a list, or fromHz/toHz/points on a log scale; default fs/1000 to',
     'fs/5, 40 points) and loadStep ({ "amps": ..., "cycles": ... }). The plant must be a stage with',
-    'open-loop control in CCM. Both outputs are written only when everything succeeded.',
+    'open-loop control (CCM or DCM) or peak-current control with a fixed command. Both outputs are written only when everything succeeded.',
   ].join('\n'),
   options: [
     { name: 'summary', value: 'FILE', help: 'summary JSON file, or - for standard output (default -)' },

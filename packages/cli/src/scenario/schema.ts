@@ -192,8 +192,8 @@ const analysesSchema = z.strictObject({
     warmupCycles: count('cycles simulated before shooting', 0).optional(),
   }).optional(),
   compare: z.strictObject({
-    input: z.enum(['duty', 'line', 'load-current']).optional()
-      .meta({ description: 'perturbed input: duty (default; per unit of duty), line (per volt of input), load-current (per ampere drawn from the output)' }),
+    input: z.enum(['control', 'duty', 'line', 'load-current']).optional()
+      .meta({ description: 'perturbed input: control (default; the duty of an open-loop stage, per unit, or the current command of a peak-current stage, per volt; "duty" is the same), line (per volt of input), load-current (per ampere drawn from the output)' }),
     output: signal.optional().meta({ description: 'response signal (default: the stage output voltage)' }),
     model: z.enum(['auto', 'ccm', 'dcm-reduced', 'dcm-full']).optional()
       .meta({ description: 'averaged model: auto (default: CCM, or full-order DCM when the steady state is in DCM), ccm, dcm-reduced or dcm-full' }),
