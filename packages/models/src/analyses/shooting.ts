@@ -162,6 +162,12 @@ export interface SteadyState {
   readonly stability: OrbitStability;
   /** The traced steady-state period (segments and instants). */
   readonly chain: Chain;
+  /**
+   * States the cycle map leaves unchanged whatever the others do (their monodromy row is a unit
+   * row and they do not move): kept at their start values and left out of the Newton solve and
+   * of the multipliers.
+   */
+  readonly conservedStates: readonly string[];
   /** Human summary: stability and the dominant multiplier. */
   readonly message: string;
 }
@@ -228,6 +234,34 @@ function fdJacobian(model: CircuitModel, sys: SwitchingSystem, section: Section,
 }
 
 /**
+ * Indices of the states the Newton solve works on. A state is conserved when, over one period,
+ * it does not move and its row of the monodromy restricted to the remaining states is a unit
+ * row (it depends on nothing that moves): a fixed reference, an integrator whose input is
+ * zero. Found iteratively, since freezing one state can expose another (a value whose slope is
+ * a conserved zero).
+ */
+function freeStates(jw: Float64Array, x0: Float64Array, x1: Float64Array, nx: number, n: number): number[] {
+  const frozen = new Uint8Array(nx);
+  for (let changed = true; changed; ) {
+    changed = false;
+    for (let i = 0; i < nx; i++) {
+      if (frozen[i]) continue;
+      if (Math.abs(x1[i]! - x0[i]!) > 1e-13 * Math.max(1, Math.abs(x0[i]!))) continue;
+      if (Math.abs(jw[i * n + i]! - 1) > 1e-12) continue;
+      let unit = true;
+      for (let j = 0; j < nx && unit; j++) if (j !== i && !frozen[j] && Math.abs(jw[i * n + j]!) > 1e-12) unit = false;
+      if (unit) {
+        frozen[i] = 1;
+        changed = true;
+      }
+    }
+  }
+  const free: number[] = [];
+  for (let i = 0; i < nx; i++) if (!frozen[i]) free.push(i);
+  return free;
+}
+
+/**
  * Periodic steady state of a switching system by shooting with the exact Jacobian, with its
  * Floquet multipliers and stability. Returns a failure (never a wrong cycle) when Newton does
  * not converge, naming iterations, residual and the likely cause.
@@ -276,14 +310,19 @@ export function periodicSteadyState(sys: SwitchingSystem, options: ShootingOptio
       }
       it++;
       const jw = options.jacobian === 'finite-difference' ? fdJacobian(model, sys, section, w, nx, n) : chainJacobian(model, chain).jw;
-      // (dP/dx - I) dx = -(P(x) - x)
-      const A = new Float64Array(nx * nx);
-      const rhs = new Float64Array(nx);
-      for (let i = 0; i < nx; i++) {
-        for (let j = 0; j < nx; j++) A[i * nx + j] = jw[i * n + j]! - (i === j ? 1 : 0);
-        rhs[i] = -(chain.run.state[i]! - w[i]!);
+      // (dP/dx - I) dx = -(P(x) - x), over the states that are not conserved (see conservedStates)
+      const free = freeStates(jw, w, chain.run.state, nx, n);
+      const nf = free.length;
+      const A = new Float64Array(nf * nf);
+      const rhs = new Float64Array(nf);
+      for (let a = 0; a < nf; a++) {
+        const i = free[a]!;
+        for (let b = 0; b < nf; b++) A[a * nf + b] = jw[i * n + free[b]!]! - (a === b ? 1 : 0);
+        rhs[a] = -(chain.run.state[i]! - w[i]!);
       }
-      const dx = solveReal(A, rhs, nx, 1);
+      const dxf = solveReal(A, rhs, nf, 1);
+      const dx = dxf === null ? null : new Float64Array(nx);
+      if (dx !== null && dxf !== null) for (let a = 0; a < nf; a++) dx[free[a]!] = dxf[a]!;
       if (dx === null) {
         const stuck = names.filter((_, i) => Math.abs(jw[i * n + i]! - 1) < 1e-9 && names.every((__, j) => j === i || Math.abs(jw[i * n + j]!) < 1e-12));
         return {
@@ -326,7 +365,14 @@ export function periodicSteadyState(sys: SwitchingSystem, options: ShootingOptio
       for (let j = 0; j < nx; j++) mono[i * nx + j] = jac.jw[i * n + j]!;
       for (let j = nx; j < n; j++) inSens[i * (n - nx) + j - nx] = jac.jw[i * n + j]!;
     }
-    const mult = floquetMultipliers(mono, nx);
+    // multipliers of the states that move; conserved states (a fixed reference, a constant
+    // integrator input) have multiplier 1 by construction and say nothing about stability
+    const free = freeStates(jac.jw, w, chain.run.state, nx, n);
+    const nf = free.length;
+    const monoFree = new Float64Array(nf * nf);
+    for (let a = 0; a < nf; a++) for (let b = 0; b < nf; b++) monoFree[a * nf + b] = mono[free[a]! * nx + free[b]!]!;
+    const mult = floquetMultipliers(monoFree, nf);
+    const conserved = names.filter((_, i) => i < nx && !free.includes(i));
     const cl = classify(mult);
     const dom = cl.dominant;
     const domText = dom === undefined ? 'no states' : `${dom.re.toPrecision(6)}${dom.im !== 0 ? ` ${dom.im >= 0 ? '+' : '-'} ${Math.abs(dom.im).toPrecision(6)}i` : ''} (|mu| = ${dom.magnitude.toPrecision(6)})`;
@@ -350,6 +396,7 @@ export function periodicSteadyState(sys: SwitchingSystem, options: ShootingOptio
       spectralRadius: cl.radius,
       stability: cl.stability,
       chain,
+      conservedStates: conserved,
       message: `periodic steady state after ${it} Newton iterations (residual ${res.toExponential(2)}), period ${chain.periodS.toPrecision(8)} s; orbit ${what}; dominant multiplier ${domText}`,
     };
   } catch (err) {
