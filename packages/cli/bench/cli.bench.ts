@@ -12,7 +12,7 @@ import { fileURLToPath } from 'node:url';
 import { buildPlan } from '../src/scenario/build.ts';
 import { parseScenario } from '../src/scenario/load.ts';
 import { runPlan } from '../src/runner.ts';
-import { runSweep } from '../src/sweep/run.ts';
+import { WORKER_WORTH_S, runSweep } from '../src/sweep/run.ts';
 import { evaluatePoint } from '../src/sweep/evaluate.ts';
 import { pointCount } from '../src/sweep/points.ts';
 import type { SweepSpec } from '../src/scenario/schema.ts';
@@ -42,6 +42,7 @@ const loop = await time(async () => {
 });
 const one = await time(() => runSweep(raw, sweep, { out: join(tmp, 'one.csv'), shard: undefined, workers: 1, resume: false, quiet: true }));
 const all = await time(() => runSweep(raw, sweep, { out: join(tmp, 'all.csv'), shard: undefined, workers: cores, resume: false, quiet: true }));
+const adaptive = await time(() => runSweep(raw, sweep, { out: join(tmp, 'adaptive.csv'), shard: undefined, workers: cores, adaptive: true, resume: false, quiet: true }));
 const wide = join(tmp, 'wide.json');
 writeFileSync(wide, JSON.stringify(raw));
 const bin1 = await time(async () => execFileSync(process.execPath, [bin, 'sweep', wide, '--out', join(tmp, 'bin1.csv'), '--workers', '1', '--quiet']));
@@ -50,9 +51,10 @@ const rate = (t: number): string => `${(n / t).toFixed(1)} points/s`;
 console.log(`sweep of ${n} points on ${cores} cores (load average ${loadavg()[0]!.toFixed(1)}):`);
 console.log(`  library loop          ${rate(loop)}`);
 console.log(`  runSweep, 1 thread    ${rate(one)}  (${(one / loop).toFixed(2)}x the loop's time)`);
-console.log(`  runSweep, ${cores} threads   ${rate(all)}  speed-up ${(one / all).toFixed(2)}x over 1 thread (includes worker start-up)`);
+console.log(`  runSweep, ${cores} threads   ${rate(all)}  speed-up ${(one / all).toFixed(2)}x over 1 thread (workers started at once; includes their start-up)`);
+console.log(`  runSweep, adaptive    ${rate(adaptive)}  speed-up ${(one / adaptive).toFixed(2)}x over 1 thread (workers only when the rest is worth more than ${WORKER_WORTH_S} s)`);
 console.log(`  binary, 1 thread      ${rate(bin1)}  (CLI/library time ${(bin1 / loop).toFixed(2)}x)`);
-console.log(`  binary, default (${cores})  ${rate(binAll)}  speed-up ${(bin1 / binAll).toFixed(2)}x over 1 thread`);
+console.log(`  binary, default       ${rate(binAll)}  speed-up ${(bin1 / binAll).toFixed(2)}x over 1 thread`);
 
 // CLI overhead on a short run: the same scenario through the library and through the binary.
 const scenarioFile = join(root, 'test-vectors/buck-ccm-ratio.json');

@@ -27,7 +27,7 @@ export const sweepCommand: Command = {
   ].join('\n'),
   options: [
     { name: 'out', value: 'FILE', help: 'result CSV (default: standard output)' },
-    { name: 'workers', value: 'N', help: 'threads computing points, this one included (default: os.availableParallelism(); 1: no worker threads)' },
+    { name: 'workers', value: 'N', help: 'threads computing points, this one included (default: os.availableParallelism(), workers started only when the first points show more than a few seconds of work left; 1: no worker threads)' },
     { name: 'shard', value: 'K/N', help: 'compute only the points with index % N == K - 1' },
     { name: 'resume', help: 'skip points already in FILE.csv.journal or FILE.csv' },
     { name: 'report', value: 'FILE', help: 'HTML report: outputs against a grid parameter' },
@@ -62,6 +62,8 @@ export const sweepCommand: Command = {
       out,
       shard: shardText === undefined ? undefined : parseShard(shardText),
       workers,
+      // an explicit --workers starts them at once; by default only when the sweep is long enough
+      adaptive: w === undefined,
       resume,
       quiet,
     });

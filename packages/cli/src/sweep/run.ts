@@ -23,6 +23,8 @@ export interface SweepOptions {
   readonly shard: { readonly k: number; readonly n: number } | undefined;
   /** Threads computing points, this one included (1: this thread only). */
   readonly workers: number;
+  /** Start the workers only when the work left is worth it (see {@link WORKER_WORTH_S}); default false: start them at once. */
+  readonly adaptive?: boolean;
   /** Skip points already in the journal (or in a finished output). */
   readonly resume: boolean;
   readonly quiet: boolean;
@@ -97,17 +99,24 @@ function readDone(path: string, header: readonly string[]): Map<number, string[]
   return done;
 }
 
+/** Work left, seconds on this thread, above which adaptive sweeps start workers (about three worker start-ups, measured). */
+export const WORKER_WORTH_S = 3;
+
 /**
  * Computes the points on `threads` threads: this one plus `threads - 1` workers, each started
  * once and fed chunks of point indices from one queue until it is empty. This thread computes
  * chunks too, so the workers' start-up (loading tsx and the sources, about a second each) is
- * not idle time, and a sweep too small to amortise a worker is finished here before it is up.
+ * not idle time. With `adaptive`, workers start only once the first chunk shows that the rest
+ * would take this thread longer than {@link WORKER_WORTH_S}: a worker costs about a second of
+ * start-up and runs cold (its own compiled code and engine caches), so short sweeps are faster
+ * on one thread.
  */
 async function runPool(
   base: unknown,
   sweep: SweepSpec,
   indices: number[],
   threads: number,
+  adaptive: boolean,
   onRows: (rows: string[][]) => void,
 ): Promise<void> {
   if (indices.length === 0) return;
@@ -126,37 +135,46 @@ async function runPool(
   let finished = false;
   let wake: (() => void) | undefined;
   const nWorkers = Math.min(threads - 1, Math.ceil(indices.length / batch) - 1);
-  for (let k = 0; k < nWorkers; k++) {
-    const w = new Worker(boot, { workerData: { base, sweep } });
-    workers.push(w);
-    const feed = (): void => {
-      const b = take();
-      if (b.length === 0) return;
-      pending++;
-      w.postMessage({ indices: b });
-    };
-    w.on('message', (m: { ready?: boolean; rows?: string[][] }) => {
-      if (m.rows !== undefined) {
-        onRows(m.rows);
-        pending--;
-      }
-      feed();
-      if (pending === 0) wake?.();
-    });
-    w.on('error', (err) => {
-      failure ??= err;
-      wake?.();
-    });
-    w.on('exit', (code) => {
-      if (!finished) {
-        failure ??= new Error(`sweep worker exited with status ${code}`);
+  const startWorkers = (): void => {
+    for (let k = 0; k < nWorkers; k++) {
+      const w = new Worker(boot, { workerData: { base, sweep } });
+      workers.push(w);
+      const feed = (): void => {
+        const b = take();
+        if (b.length === 0) return;
+        pending++;
+        w.postMessage({ indices: b });
+      };
+      w.on('message', (m: { ready?: boolean; rows?: string[][] }) => {
+        if (m.rows !== undefined) {
+          onRows(m.rows);
+          pending--;
+        }
+        feed();
+        if (pending === 0) wake?.();
+      });
+      w.on('error', (err) => {
+        failure ??= err;
         wake?.();
-      }
-    });
-  }
+      });
+      w.on('exit', (code) => {
+        if (!finished) {
+          failure ??= new Error(`sweep worker exited with status ${code}`);
+          wake?.();
+        }
+      });
+    }
+  };
+  if (!adaptive) startWorkers();
+  const t0 = performance.now();
   try {
     for (let b = take(); b.length > 0 && failure === undefined; b = take()) {
       onRows(b.map((p) => evaluatePoint(base, sweep, p)));
+      if (adaptive && workers.length === 0 && nWorkers > 0) {
+        // Start workers only when the work left would outlast their start-up by a margin.
+        const perPointS = (performance.now() - t0) / 1000 / next;
+        if (perPointS * (indices.length - next) > WORKER_WORTH_S) startWorkers();
+      }
       // let the workers' messages in between chunks
       await new Promise<void>((r) => setImmediate(r));
     }
@@ -194,7 +212,7 @@ export async function runSweep(base: unknown, sweep: SweepSpec, options: SweepOp
   const progress = makeProgress('sweep', options.quiet);
   const fresh: string[][] = [];
   let finished = 0;
-  await runPool(base, sweep, todo, options.workers, (rows) => {
+  await runPool(base, sweep, todo, options.workers, options.adaptive ?? false, (rows) => {
     for (const r of rows) fresh.push(r);
     if (journal !== undefined) appendFileSync(journal, rows.map(csvRecord).join(''));
     finished += rows.length;
