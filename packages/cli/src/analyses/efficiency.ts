@@ -43,7 +43,7 @@ export interface EfficiencyCurve {
 }
 
 /** Computes the efficiency curve; InputError for unsuitable scenarios, RunFailure when no point converges. */
-export function efficiencyCurve(plan: Plan, where: string): EfficiencyCurve {
+export function efficiencyCurve(plan: Plan, where: string, progress?: (done: number, total: number) => void): EfficiencyCurve {
   const scenario = plan.scenario;
   const loads = scenario.analyses?.efficiency?.loads;
   if (loads === undefined) throw new InputError(where, ['analyses.efficiency: missing; add { "loads": [...] } (ohms or amperes, the stage load\'s unit)']);
@@ -59,6 +59,7 @@ export function efficiencyCurve(plan: Plan, where: string): EfficiencyCurve {
   const { steps: _s, ...input } = plant.input;
   let prev: Float64Array | null = null;
   const points = loads.map((value, i): EfficiencyCurvePoint => {
+    progress?.(i, loads.length);
     const load = kind === 'resistor' ? { kind: 'resistor' as const, ohms: value } : { kind: 'current' as const, amps: value };
     const p: StagePlant = { ...plant, input, load };
     const built = buildStagePlant(p, `${where} (analyses.efficiency.loads[${i}])`);

@@ -6,7 +6,7 @@
  */
 import { optFlag, optValue, type ParsedArgs } from '../args.ts';
 import { efficiencyCurve, type EfficiencyCurve } from '../analyses/efficiency.ts';
-import { ensureDir, writeFileAtomic } from '../io.ts';
+import { ensureDir, makeProgress, writeFileAtomic } from '../io.ts';
 import { renderReport, type Section } from '../plot.ts';
 import { buildPlan } from '../scenario/build.ts';
 import { loadScenarioFile } from '../scenario/load.ts';
@@ -75,7 +75,13 @@ export const efficiencyCommand: Command = {
     const quiet = optFlag(args, 'quiet');
     const { scenario } = loadScenarioFile(file);
     const plan = buildPlan(scenario, file);
-    const curve = efficiencyCurve(plan, file);
+    const progress = makeProgress('efficiency', quiet);
+    let curve;
+    try {
+      curve = efficiencyCurve(plan, file, (done, total) => progress?.update(done / total, `${done}/${total} loads`));
+    } finally {
+      progress?.done();
+    }
     const summary = optValue(args, 'summary') ?? '-';
     const report = optValue(args, 'report');
     const json = `${JSON.stringify({ scenario: plan.name, analysis: 'efficiency', ...curve }, null, 2)}\n`;
