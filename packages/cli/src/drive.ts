@@ -89,8 +89,8 @@ export function createPwmDrive(s: PwmDriveSettings): Controller {
  * Wraps a controller so that an event happens at `markS` (a no-op for the circuit) and calls
  * `onMark` there: the summary window then starts exactly at an event instant.
  */
-export function withMark(inner: Controller | undefined, markS: number, onMark: () => void): Controller {
-  const TAG = 2 ** 50 + 7; // far above the tags controllers use (small counts; the stage schedule uses <= -1e6)
+export function withMark(inner: Controller | undefined, markS: number, onMark: () => void, tag = 2 ** 50 + 7): Controller {
+  const TAG = tag; // far above the tags controllers use (small counts; the stage schedule uses <= -1e6)
   return {
     start(ctx) {
       inner?.start(ctx);

@@ -45,10 +45,42 @@ export interface RunSummary {
   modes?: { ccmCycles: number; dcmCycles: number; lastCycle: 'CCM' | 'DCM' };
   /** Loss breakdown over the window: conduction per element part, switching per device when the scenario has switching-loss data. */
   losses?: LossSummary;
+  /**
+   * For stages with a voltage loop: the exact mean output over the last switching period
+   * against the target (reference / feedback gain); `regulated` is false when the error exceeds
+   * the tolerance, so a loop that fails to regulate is reported, not hidden.
+   */
+  regulation?: RegulationSummary;
   /** Turn-ons of the main switch in the window and the mean switching frequency between the first and last. */
   switching?: { turnOns: number; frequencyHz: number };
   counters: RunCounters;
   [extra: string]: unknown;
+}
+
+/** Regulation of a closed voltage loop at the end of the run. */
+export interface RegulationSummary {
+  signal: string;
+  targetVolts: number;
+  lastPeriodMeanVolts: number;
+  errorVolts: number;
+  /** |error| allowed: 1 % of the target (common practice for a regulation band), plus half the output's peak-to-peak over the window for constant on-time and hysteretic laws (they regulate a valley or a band). */
+  toleranceVolts: number;
+  regulated: boolean;
+}
+
+/** Target output of a stage plant's voltage loop (reference / feedback gain), or undefined. */
+function regulationTarget(plan: Plan): { signal: string; volts: number; rippleBased: boolean } | undefined {
+  const plant = plan.scenario.plant as unknown as { kind: string; converter?: string; control?: Record<string, unknown> };
+  if (plant.kind !== 'stage' || plan.stage === undefined || plant.control === undefined) return undefined;
+  const c = plant.control;
+  const loop = c.kind === 'peak-current' ? (c.command as Record<string, unknown> | undefined) : c;
+  if (loop === undefined || !(c.kind === 'voltage-mode' || c.kind === 'constant-on-time' || c.kind === 'hysteretic' || (c.kind === 'peak-current' && loop.kind === 'voltage-loop'))) return undefined;
+  let ref = loop.referenceVolts;
+  const schedule = loop.referenceSchedule as { atS: unknown; volts: unknown }[] | undefined;
+  for (const e of schedule ?? []) if (typeof e.atS === 'number' && e.atS <= plan.stopS && typeof e.volts === 'number') ref = e.volts;
+  const gain = typeof loop.feedbackGain === 'number' ? loop.feedbackGain : plant.converter === 'buck-boost' ? -1 : 1;
+  if (typeof ref !== 'number' || !Number.isFinite(ref) || gain === 0) return undefined;
+  return { signal: plan.stage.signals.outputVoltage, volts: ref / gain, rippleBased: c.kind === 'constant-on-time' || c.kind === 'hysteretic' };
 }
 
 /** Loss breakdown over the window, watts. */
@@ -273,9 +305,20 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
 
   let atMark: Readonly<Record<string, number>> | undefined;
   let marked = false;
-  const controller = withMark(plan.createController(), plan.fromS, () => {
+  let controller = withMark(plan.createController(), plan.fromS, () => {
     marked = true;
   });
+  // the exact mean output over the last period, for the regulation check
+  const target = regulationTarget(plan);
+  const lastS = T !== undefined ? plan.stopS - T : -1;
+  let lastMarked = false;
+  let atLast: number | undefined;
+  if (target !== undefined && T !== undefined && lastS >= 0) {
+    integrals.push({ name: 'regulation', of: target.signal });
+    controller = withMark(controller, lastS, () => {
+      lastMarked = true;
+    }, 2 ** 50 + 9);
+  }
   const sim = new Simulation(plan.model, {
     stopS: plan.stopS,
     timeBaseS: plan.timeBaseS,
@@ -292,9 +335,11 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
       : plan.initial !== undefined ? { initialState: plan.initial } : {}),
   });
   if (marked) atMark = sim.result().integrals;
+  if (lastMarked) atLast = sim.result().integrals.regulation;
   while (sim.status === 'running') {
     sim.step();
     if (marked && atMark === undefined) atMark = sim.result().integrals;
+    if (lastMarked && atLast === undefined) atLast = sim.result().integrals.regulation;
   }
   const result = sim.result();
   if (trackCycles) closeCycle(result.timeS);
@@ -355,6 +400,21 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
       }
     }
     summary.losses = losses;
+  }
+  if (target !== undefined && T !== undefined && atLast !== undefined && result.status === 'finished') {
+    const mean = ((ints.regulation ?? 0) - atLast) / T;
+    const rec = plan.record.indexOf(target.signal);
+    // laws that regulate a valley or a band sit off their reference by up to half the ripple
+    const ripple = target.rippleBased && rec >= 0 ? max[rec]! - min[rec]! : 0;
+    const tol = 0.01 * Math.abs(target.volts) + 0.5 * ripple;
+    summary.regulation = {
+      signal: target.signal,
+      targetVolts: target.volts,
+      lastPeriodMeanVolts: mean,
+      errorVolts: mean - target.volts,
+      toleranceVolts: tol,
+      regulated: Math.abs(mean - target.volts) <= tol,
+    };
   }
   if (mainMask !== 0) summary.switching = { turnOns, frequencyHz: turnOns > 1 ? (turnOns - 1) / (lastOn - firstOn) : 0 };
   if (trackCycles && ccm + dcm > 0) summary.modes = { ccmCycles: ccm, dcmCycles: dcm, lastCycle: cycleDcm ? 'DCM' : 'CCM' };
