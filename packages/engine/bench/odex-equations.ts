@@ -1,23 +1,7 @@
 // The benchmark scenarios' piecewise-linear equations written out by hand for odex
 // (Hairer and Wanner's GBS extrapolation code), with its own event location on the dense
 // output for the diode's zero-current event. Independent of the engine's network solve.
-import { createRequire } from 'node:module';
-
-interface OdexSolver {
-  absoluteTolerance: number;
-  relativeTolerance: number;
-  maxSteps: number;
-  initialStepSize: number;
-  denseOutput: boolean;
-  solve(
-    f: (x: number, y: number[]) => number[],
-    x0: number,
-    y0: number[],
-    x1: number,
-    out?: (n: number, xOld: number, x: number, y: number[], dense?: (i: number, x: number) => number) => boolean | void,
-  ): { y: number[]; nEval: number };
-}
-const { Solver } = createRequire(import.meta.url)('odex') as { Solver: new (n: number) => OdexSolver };
+import { Solver, type OdexSolver } from '../test/odex-solver.ts';
 
 const VIN = 12, L = 4.7e-6, RL = 0.02, C = 22e-6, ESR = 0.005, RON = 0.01;
 const LF = 1e-6, RLF = 0.01, CF = 10e-6, ESRF = 0.003, VF = 0.4, RD = 0.02;

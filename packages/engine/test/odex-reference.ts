@@ -2,24 +2,7 @@
 // integrated by odex (Hairer and Wanner's GBS extrapolation code, E. Hairer, S. P. Norsett and
 // G. Wanner, Solving Ordinary Differential Equations I, 1993), with its own event location
 // on the dense output.
-import { createRequire } from 'node:module';
-
-/** The part of odex's Solver used here (odex ships TypeScript sources that do not pass our strict settings). */
-interface OdexSolver {
-  absoluteTolerance: number;
-  relativeTolerance: number;
-  maxSteps: number;
-  initialStepSize: number;
-  denseOutput: boolean;
-  solve(
-    f: (x: number, y: number[]) => number[],
-    x0: number,
-    y0: number[],
-    x1: number,
-    out?: (n: number, xOld: number, x: number, y: number[], dense?: (i: number, x: number) => number) => boolean | void,
-  ): { y: number[] };
-}
-const { Solver } = createRequire(import.meta.url)('odex') as { Solver: new (n: number) => OdexSolver };
+import { Solver, type OdexSolver } from './odex-solver.ts';
 
 export interface BuckNumbers {
   vin: number;

@@ -5,12 +5,12 @@
  * @module
  */
 import type { CircuitModel, IntegralSpec } from '@edgewise/engine';
-import { LossAccountant, ParameterError, type SwitchingEnergy, type SwitchingLossModels } from '@edgewise/models';
+import { conductionTerms as modelTerms, LossAccountant, ParameterError, type ConductionPart, type SwitchingEnergy, type SwitchingLossModels } from '@edgewise/models';
 import { InputError } from '../errors.ts';
 import type { SwitchingLossSpec } from '../scenario/schema.ts';
 
 /** Where a conduction loss is dissipated. */
-export type LossPart = 'channel' | 'body-diode' | 'diode' | 'winding' | 'esr' | 'resistor' | 'source-resistance';
+export type LossPart = ConductionPart;
 
 /** One conduction-loss integral: scale times the integral of `of` times `times`. */
 export interface ConductionTerm {
@@ -20,39 +20,11 @@ export interface ConductionTerm {
   readonly integral: IntegralSpec;
 }
 
-/** Conduction terms of every dissipating part except the loads (ids in `exclude`). */
+/** Conduction terms of every dissipating part except the loads (ids in `exclude`), with their integrals. */
 export function conductionTerms(model: CircuitModel, exclude: ReadonlySet<string>): ConductionTerm[] {
-  const out: ConductionTerm[] = [];
-  const add = (element: string, part: LossPart, of: string, times: string, scale: number): void => {
-    out.push({ element, part, scale, integral: { name: `loss:${element}:${part}`, of, times } });
-  };
-  for (const e of model.circuit.spec.elements) {
-    if (exclude.has(e.id)) continue;
-    switch (e.kind) {
-      case 'switch':
-        add(e.id, 'channel', `${e.id}.voltage`, `${e.id}.channel.current`, 1);
-        if (e.bodyDiode !== undefined) add(e.id, 'body-diode', `${e.id}.body.voltage`, `${e.id}.body.current`, 1);
-        break;
-      case 'diode':
-        add(e.id, 'diode', `${e.id}.voltage`, `${e.id}.current`, 1);
-        break;
-      case 'inductor':
-        if ((e.seriesOhms ?? 0) > 0) add(e.id, 'winding', `${e.id}.current`, `${e.id}.current`, e.seriesOhms!);
-        break;
-      case 'capacitor':
-        if ((e.esrOhms ?? 0) > 0) add(e.id, 'esr', `${e.id}.current`, `${e.id}.current`, e.esrOhms!);
-        break;
-      case 'resistor':
-        add(e.id, 'resistor', `${e.id}.voltage`, `${e.id}.current`, 1);
-        break;
-      case 'voltage-source':
-        if ((e.seriesOhms ?? 0) > 0) add(e.id, 'source-resistance', `${e.id}.current`, `${e.id}.current`, e.seriesOhms!);
-        break;
-      default:
-        break;
-    }
-  }
-  return out;
+  return modelTerms(model.circuit.spec, exclude, { sourceResistance: true }).map((t) => ({
+    element: t.element, part: t.part, scale: t.scale, integral: { name: `loss:${t.element}:${t.part}`, of: t.of, times: t.times },
+  }));
 }
 
 /** The models' switching-loss data from the scenario's (SI numbers). */

@@ -8,6 +8,7 @@ import {
   type RunResult,
 } from '@edgewise/engine';
 import type { ClosedStage } from '../stage.ts';
+import { conductionTerms, type ConductionPart } from './conduction.ts';
 import { LossAccountant, type SwitchingEnergy } from './accountant.ts';
 import type { SwitchingLossModels } from './switching.ts';
 
@@ -25,7 +26,7 @@ export interface LossAnalysisOptions {
 }
 
 /** Where a conduction loss is dissipated. */
-export type ConductionPart = 'channel' | 'body-diode' | 'diode' | 'winding' | 'esr' | 'resistor';
+
 
 /** Average conduction loss of one element part over the window, watts. */
 export interface ConductionLoss {
@@ -132,33 +133,10 @@ export function analyzeLosses(closed: ClosedStage, options: LossAnalysisOptions)
     { name: 'pin', of: sig.inputVoltage, times: sig.inputCurrent },
     { name: 'pout', of: sig.outputVoltage, times: sig.loadCurrent },
   ];
-  const add = (element: string, part: ConductionPart, of: string, times: string, scale: number): void => {
-    const name = `${element}#${part}`;
-    integrals.push({ name, of, times });
-    entries.push({ element, part, scale, integral: name });
-  };
-  for (const e of c.spec.elements) {
-    if (load.has(e.id)) continue;
-    switch (e.kind) {
-      case 'switch':
-        add(e.id, 'channel', `${e.id}.voltage`, `${e.id}.channel.current`, 1);
-        if (e.bodyDiode !== undefined) add(e.id, 'body-diode', `${e.id}.body.voltage`, `${e.id}.body.current`, 1);
-        break;
-      case 'diode':
-        add(e.id, 'diode', `${e.id}.voltage`, `${e.id}.current`, 1);
-        break;
-      case 'inductor':
-        if ((e.seriesOhms ?? 0) > 0) add(e.id, 'winding', `${e.id}.current`, `${e.id}.current`, e.seriesOhms!);
-        break;
-      case 'capacitor':
-        if ((e.esrOhms ?? 0) > 0) add(e.id, 'esr', `${e.id}.current`, `${e.id}.current`, e.esrOhms!);
-        break;
-      case 'resistor':
-        add(e.id, 'resistor', `${e.id}.voltage`, `${e.id}.current`, 1);
-        break;
-      default:
-        break;
-    }
+  for (const t of conductionTerms(c.spec, load)) {
+    const name = `${t.element}#${t.part}`;
+    integrals.push({ name, of: t.of, times: t.times });
+    entries.push({ element: t.element, part: t.part, scale: t.scale, integral: name });
   }
   const accountant = new LossAccountant(model, options.switching ?? {}, { fromS, toS });
   const inner = closed.createController();
