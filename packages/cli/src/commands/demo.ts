@@ -13,7 +13,10 @@ import { HELP, QUIET, say, type Command } from './common.ts';
 import { executeRun } from './run.ts';
 
 /** The example scenario shipped in examples/. */
-export const DEMO_SCENARIO = fileURLToPath(new URL('../../../../examples/pol-buck.json', import.meta.url));
+export const DEMO_SCENARIO = fileURLToPath(
+  // this file sits in packages/cli/src/commands; the bundle (scripts/build-cli.mjs) in packages/cli/dist
+  new URL(import.meta.url.endsWith('.ts') ? '../../../../examples/pol-buck.json' : '../../../examples/pol-buck.json', import.meta.url),
+);
 
 export const demoCommand: Command = {
   name: 'demo',

@@ -128,7 +128,9 @@ async function runPool(
     next += b.length;
     return b;
   };
-  const boot = new URL('./worker-boot.mjs', import.meta.url);
+  // from the sources the worker boots through tsx; from the bundle (packages/cli/dist, see
+  // scripts/build-cli.mjs) it is the bundled worker next to this chunk
+  const boot = new URL(import.meta.url.endsWith('.ts') ? './worker-boot.mjs' : './sweep-worker.mjs', import.meta.url);
   const workers: Worker[] = [];
   let pending = 0; // chunks handed to workers and not yet back
   let failure: Error | undefined;
