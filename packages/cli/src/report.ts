@@ -7,6 +7,12 @@ import type { Plan } from './scenario/build.ts';
 import type { RunOutcome } from './runner.ts';
 import { formatQuantity } from './units.ts';
 
+/** A short y-axis label: the signal names (the chart title says what the chart is). */
+function axisLabel(signals: readonly string[]): string {
+  const label = signals.join(', ');
+  return label.length <= 28 ? label : `${label.slice(0, 25)}...`;
+}
+
 function fmt(value: number, unit: string): string {
   if (!Number.isFinite(value)) return String(value);
   return unit === '' ? Number(value.toPrecision(6)).toString() : formatQuantity(value, unit, 5);
@@ -39,7 +45,7 @@ function waveformCharts(plan: Plan, outcome: RunOutcome, fromS: number, toS: num
       title: g.title,
       xLabel: 'time',
       xUnit: 's',
-      yLabel: units.size === 1 ? g.title : 'value',
+      yLabel: axisLabel(g.signals),
       ...(unit !== '' ? { yUnit: unit } : {}),
       series: g.signals
         .filter((s) => plan.record.includes(s))
@@ -96,7 +102,7 @@ export function runSections(plan: Plan, outcome: RunOutcome): Section[] {
         title: `${g.title}: per-cycle mean, min and max`,
         xLabel: 'cycle start',
         xUnit: 's',
-        yLabel: g.title,
+        yLabel: axisLabel(g.signals),
         ...(unit !== '' ? { yUnit: unit } : {}),
         series: g.signals.filter((x) => plan.record.includes(x)).flatMap((sig) => {
           const k = plan.record.indexOf(sig);

@@ -242,10 +242,24 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
         for (let i = 0; i < nSig; i++) row[i + 1] = values[i]!;
         csv.row(row, [String(key)]);
       }
+      // The piece from the previous sample to this one belongs to the cycle in force before
+      // this sample: accumulate it (and the main switch's on-time over it) first.
+      const dt = any ? timeS - prevT : 0;
+      if (dt > 0) {
+        for (let i = 0; i < nSig; i++) {
+          const a = prev[i]!, v = values[i]!;
+          sum[i]! += 0.5 * dt * (a + v);
+          sumSq[i]! += (dt / 3) * (a * a + a * v + v * v); // exact for a linear piece
+          cSum[i]! += 0.5 * dt * (a + v);
+        }
+        if (mainMask !== 0 && lastKey >= 0 && (lastKey & mainMask) !== 0) cOn += dt;
+      }
       if (trackCycles) {
-        // Samples at a clock edge belong to the cycle that starts there (the "after" side).
+        // Samples at a clock edge belong to the cycle that starts there (the "after" side); the
+        // index only moves forward, so a grid point that rounds just past an edge cannot
+        // reopen the cycle before it.
         const k = Math.floor((timeS - plan.fromS) / T + (kind === SampleKind.Before ? -1e-9 : 1e-9));
-        if (k !== cycleIndex && timeS < plan.stopS - T * 1e-9) {
+        if (k > cycleIndex && timeS < plan.stopS - T * 1e-9) {
           closeCycle(timeS);
           cycleIndex = k;
           cycleDcm = false;
@@ -259,8 +273,6 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
         if (kind !== SampleKind.Before && isHeld(key)) cycleDcm = true;
       }
       if (mainMask !== 0) {
-        // the key holds from the previous sample to this one
-        if (lastKey >= 0 && (lastKey & mainMask) !== 0 && any) cOn += timeS - prevT;
         if (lastKey >= 0 && (key & mainMask) !== 0 && (lastKey & mainMask) === 0) {
           cTurnOns++;
           turnOns++;
@@ -269,19 +281,12 @@ export function runPlan(plan: Plan, options: RunPlanOptions = {}): RunOutcome {
         }
         lastKey = key;
       }
-      const dt = any ? timeS - prevT : 0;
       for (let i = 0; i < nSig; i++) {
         const v = values[i]!;
         if (v < min[i]!) min[i] = v;
         if (v > max[i]!) max[i] = v;
         if (v < cMin[i]!) cMin[i] = v;
         if (v > cMax[i]!) cMax[i] = v;
-        if (dt > 0) {
-          const a = prev[i]!;
-          sum[i]! += 0.5 * dt * (a + v);
-          sumSq[i]! += (dt / 3) * (a * a + a * v + v * v); // exact for a linear piece
-          cSum[i]! += 0.5 * dt * (a + v);
-        }
         prev[i] = v;
         last[i] = v;
       }
