@@ -181,6 +181,19 @@ const FACT_INV: Float64Array = (() => {
   return f;
 })();
 
+/** The error of an invalid `at` call (kept out of the hot method). */
+function badTimer(tag: number, cycle: number, offsetS: number, nowS: number): RangeError {
+  if (!Number.isInteger(cycle) || !Number.isFinite(offsetS)) return new RangeError(`timer ${tag}: cycle must be an integer and offsetS finite, got ${String(cycle)}, ${String(offsetS)}`);
+  return new RangeError(`timer ${tag}: scheduled in the past (cycle ${cycle} + ${offsetS} s is before t = ${nowS} s)`);
+}
+
+/** A copy of a typed array with twice the length (the event queue grows rarely). */
+function grown<T extends Float64Array | Int32Array>(a: T): T {
+  const b = new (a.constructor as new (n: number) => T)(a.length * 2);
+  b.set(a);
+  return b;
+}
+
 /** Number of Taylor terms giving a truncation below 2e-17 (relative) for rho = ||A|| h <= 1. */
 function taylorOrder(rho: number): number {
   if (rho === 0) return 1;
@@ -290,16 +303,12 @@ export class Simulation {
   private readonly maxFlips: number;
   private readonly useCache: boolean;
   private readonly maxCached: number;
-  // event queue (small)
+  // event queue (small), sorted latest first: the next event is at qLen - 1
   private qCyc = new Float64Array(16);
   private qOff = new Float64Array(16);
   private qKind = new Int32Array(16);
   private qTag = new Float64Array(16);
-  private qSeq = new Float64Array(16);
   private qLen = 0;
-  private seq = 0;
-  /** cached index of the earliest entry, -1 when the queue changed */
-  private qNext = -1;
   // gates
   private readonly gateMask: Int32Array;
   private readonly gateOn: Uint8Array;
@@ -501,68 +510,69 @@ export class Simulation {
 
   private push(cyc: number, off: number, kind: number, tag: number): void {
     if (this.qLen === this.qCyc.length) {
-      const grow = <T extends Float64Array | Int32Array>(a: T): T => {
-        const b = new (a.constructor as new (n: number) => T)(a.length * 2);
-        b.set(a);
-        return b;
-      };
-      this.qCyc = grow(this.qCyc);
-      this.qOff = grow(this.qOff);
-      this.qKind = grow(this.qKind);
-      this.qTag = grow(this.qTag);
-      this.qSeq = grow(this.qSeq);
+      this.qCyc = grown(this.qCyc);
+      this.qOff = grown(this.qOff);
+      this.qKind = grown(this.qKind);
+      this.qTag = grown(this.qTag);
     }
     // normalise the offset into [0, tb)
-    if (off >= this.tb || off < 0) {
-      const k = Math.floor(off / this.tb);
+    const tb = this.tb;
+    if (off >= tb || off < 0) {
+      const k = Math.floor(off / tb);
       cyc += k;
-      off -= k * this.tb;
+      off -= k * tb;
       if (off < 0) off = 0;
     }
-    this.qNext = -1;
-    const i = this.qLen++;
-    this.qCyc[i] = cyc;
-    this.qOff[i] = off;
-    this.qKind[i] = kind;
-    this.qTag[i] = tag;
-    this.qSeq[i] = this.seq++;
+    // The queue is kept sorted latest first, so that the earliest entry is the last one and
+    // taking it costs nothing. Ties: source steps, then timers, then the stop; entries of equal
+    // rank in scheduling order (a new entry goes after every equal one).
+    const qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
+    const rank = kind === KIND_STEP ? 0 : kind === KIND_TIMER ? 1 : 2;
+    let j = this.qLen;
+    while (j > 0) {
+      const cj = qCyc[j - 1]!;
+      if (cj > cyc) break;
+      if (cj === cyc) {
+        const oj = qOff[j - 1]!;
+        if (oj > off) break;
+        if (oj === off) {
+          const kj = qKind[j - 1]!;
+          const rj = kj === KIND_STEP ? 0 : kj === KIND_TIMER ? 1 : 2;
+          if (rj > rank) break;
+        }
+      }
+      j--;
+    }
+    for (let i = this.qLen; i > j; i--) {
+      qCyc[i] = qCyc[i - 1]!;
+      qOff[i] = qOff[i - 1]!;
+      qKind[i] = qKind[i - 1]!;
+      qTag[i] = qTag[i - 1]!;
+    }
+    qCyc[j] = cyc;
+    qOff[j] = off;
+    qKind[j] = kind;
+    qTag[j] = tag;
+    this.qLen++;
   }
 
   private removeTimer(tag: number): void {
-    for (let i = 0; i < this.qLen; i++) {
-      if (this.qKind[i] === KIND_TIMER && this.qTag[i] === tag) {
-        this.qNext = -1;
-      const last = --this.qLen;
-        this.qCyc[i] = this.qCyc[last]!;
-        this.qOff[i] = this.qOff[last]!;
-        this.qKind[i] = this.qKind[last]!;
-        this.qTag[i] = this.qTag[last]!;
-        this.qSeq[i] = this.qSeq[last]!;
+    const qKind = this.qKind, qTag = this.qTag;
+    const len = this.qLen;
+    for (let i = 0; i < len; i++) {
+      if (qKind[i] === KIND_TIMER && qTag[i] === tag) {
+        const qCyc = this.qCyc, qOff = this.qOff;
+        // shift down to keep the order
+        for (let k = i + 1; k < len; k++) {
+          qCyc[k - 1] = qCyc[k]!;
+          qOff[k - 1] = qOff[k]!;
+          qKind[k - 1] = qKind[k]!;
+          qTag[k - 1] = qTag[k]!;
+        }
+        this.qLen = len - 1;
         return;
       }
     }
-  }
-
-  /** index of the earliest queue entry (ties: stop last, then by kind, then by scheduling order) */
-  private nextIndex(): number {
-    if (this.qNext >= 0) return this.qNext;
-    let best = 0;
-    for (let i = 1; i < this.qLen; i++) {
-      const dc = this.qCyc[i]! - this.qCyc[best]!;
-      if (dc < 0 || (dc === 0 && (this.qOff[i]! < this.qOff[best]! ||
-        (this.qOff[i] === this.qOff[best] && this.before(i, best))))) best = i;
-    }
-    this.qNext = best;
-    return best;
-  }
-
-  private before(i: number, j: number): boolean {
-    const ki = this.qKind[i]!, kj = this.qKind[j]!;
-    // source steps first, then timers, then stop
-    const ri = ki === KIND_STEP ? 0 : ki === KIND_TIMER ? 1 : 2;
-    const rj = kj === KIND_STEP ? 0 : kj === KIND_TIMER ? 1 : 2;
-    if (ri !== rj) return ri < rj;
-    return this.qSeq[i]! < this.qSeq[j]!;
   }
 
   // ----------------------------------------------------------------------------------------
@@ -618,31 +628,35 @@ export class Simulation {
       return g;
     }
     setGate(g: number, on: boolean): void {
-      const mask = this.sim.gateMask[g]!;
+      const sim = this.sim;
+      const mask = sim.gateMask[g]!;
+      const key = sim.key;
       if (on) {
-        this.sim.gateOn[g] = 1;
-        this.sim.key |= mask;
+        sim.gateOn[g] = 1;
+        sim.key = key | mask;
       } else {
-        if (this.sim.key & mask) this.sim.turnedOff |= this.sim.key & mask;
-        this.sim.gateOn[g] = 0;
-        this.sim.key &= ~mask;
+        if (key & mask) sim.turnedOff |= key & mask;
+        sim.gateOn[g] = 0;
+        sim.key = key & ~mask;
       }
     }
     isGateOn(g: number): boolean {
       return this.sim.gateOn[g] === 1;
     }
     at(tag: number, cycle: number, offsetS: number): void {
-      if (!Number.isInteger(cycle) || !Number.isFinite(offsetS)) throw new RangeError(`timer ${tag}: cycle must be an integer and offsetS finite, got ${String(cycle)}, ${String(offsetS)}`);
-      if ((cycle - this.sim.cyc) * this.sim.tb + (offsetS - this.sim.off) < 0) {
-        throw new RangeError(`timer ${tag}: scheduled in the past (cycle ${cycle} + ${offsetS} s is before t = ${this.sim.timeS} s)`);
+      const sim = this.sim;
+      // one combined test on the common path; the messages are built only on failure
+      if (!(Number.isInteger(cycle) && Number.isFinite(offsetS) && (cycle - sim.cyc) * sim.tb + (offsetS - sim.off) >= 0)) {
+        throw badTimer(tag, cycle, offsetS, sim.timeS);
       }
-      this.sim.removeTimer(tag);
-      this.sim.push(cycle, offsetS, KIND_TIMER, tag);
+      sim.removeTimer(tag);
+      sim.push(cycle, offsetS, KIND_TIMER, tag);
     }
     after(tag: number, delayS: number): void {
+      const sim = this.sim;
       if (!(delayS >= 0 && delayS < Infinity)) throw new RangeError(`timer ${tag}: delay must be a finite time >= 0 s, got ${String(delayS)}`);
-      this.sim.removeTimer(tag);
-      this.sim.push(this.sim.cyc, this.sim.off + delayS, KIND_TIMER, tag);
+      sim.removeTimer(tag);
+      sim.push(sim.cyc, sim.off + delayS, KIND_TIMER, tag);
     }
     cancel(tag: number): void {
       this.sim.removeTimer(tag);
@@ -1387,7 +1401,7 @@ export class Simulation {
 
   private stepInner(): void {
     if (this.activeDirty) this.rebuildActive();
-    const qi = this.nextIndex();
+    const qi = this.qLen - 1;
     const c1 = this.qCyc[qi]!, o1 = this.qOff[qi]!;
     const h = (c1 - this.cyc) * this.tb + (o1 - this.off);
     const t = this.topo;
@@ -1482,18 +1496,12 @@ export class Simulation {
   /** Handles every scheduled event at the current instant, in the defined order, then switches. */
   private handleScheduled(before: number): void {
     for (;;) {
-      if (this.qLen === 0) break;
-      const i = this.nextIndex();
+      const i = this.qLen - 1;
+      if (i < 0) break;
       if (this.qCyc[i] !== this.cyc || this.qOff[i] !== this.off) break;
       const kind = this.qKind[i]!;
       const tag = this.qTag[i]!;
-      this.qNext = -1;
-      const last = --this.qLen;
-      this.qCyc[i] = this.qCyc[last]!;
-      this.qOff[i] = this.qOff[last]!;
-      this.qKind[i] = this.qKind[last]!;
-      this.qTag[i] = this.qTag[last]!;
-      this.qSeq[i] = this.qSeq[last]!;
+      this.qLen = i;
       this.counters.events++;
       if (kind === KIND_STOP) {
         this.settleAndSwitch(before);
@@ -1522,7 +1530,7 @@ export class Simulation {
     for (;;) {
       if (this.activeDirty) this.rebuildActive();
       if (this.active.length !== 0 || this.stopRequest !== null || this.status !== 'running') return;
-      const qi = this.nextIndex();
+      const qi = this.qLen - 1;
       const c1 = this.qCyc[qi]!, o1 = this.qOff[qi]!;
       const h = (c1 - this.cyc) * tb + (o1 - this.off);
       const t = this.topo;
