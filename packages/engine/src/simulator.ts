@@ -1527,6 +1527,11 @@ export class Simulation {
     const nx = this.nx, n = this.n, tb = this.tb;
     const w = this.w, w1 = this.w1;
     const counters = this.counters;
+    const ctrl = this.ctrl, ctx = this.ctx;
+    const table = this.topoTable, dense = this.activeDense, denseArm = this.activeDenseArm;
+    // without diodes and with a dense table, switching is a table lookup (settle() has nothing
+    // to do unless the new topology holds an inductor)
+    const plainSwitch = this.diodeCount === 0 && table !== null && dense !== null;
     for (;;) {
       if (this.activeDirty) this.rebuildActive();
       if (this.active.length !== 0 || this.stopRequest !== null || this.status !== 'running') return;
@@ -1558,7 +1563,44 @@ export class Simulation {
         this.off = o1;
         this.onInstant();
       }
-      this.handleScheduled(t.key);
+      // Timers due now are handled here (the general handler is a call too large to inline);
+      // a source step or the stop goes to the general handler with the rest of the instant.
+      const before = t.key;
+      let general = ctrl === undefined;
+      for (;;) {
+        const i = this.qLen - 1;
+        if (i < 0 || this.qCyc[i] !== c1 || this.qOff[i] !== o1) break;
+        if (this.qKind[i] !== KIND_TIMER || ctrl === undefined) {
+          general = true;
+          break;
+        }
+        const tag = this.qTag[i]!;
+        this.qLen = i;
+        counters.events++;
+        ctrl.onEvent(ctx, tag);
+      }
+      if (general) {
+        this.handleScheduled(before);
+        continue;
+      }
+      const key = this.key;
+      if (!plainSwitch) this.settleAndSwitch(before);
+      else if (key === before) {
+        if (t.heldInductors.length !== 0) this.settleAndSwitch(before);
+        else this.turnedOff = 0;
+      } else {
+        let nt = table[key];
+        if (nt === undefined) nt = this.lookupTopology(key);
+        if (nt.heldInductors.length !== 0) this.settleAndSwitch(before);
+        else {
+          this.turnedOff = 0;
+          this.topo = nt;
+          // the active guard list of the new topology, when cached for the armed set
+          if (denseArm[key] === this.armKey) this.active = dense[key]!;
+          else this.activeDirty = true;
+        }
+      }
+      if (this.stopRequest !== null) this.finish('stopped', this.stopRequest);
     }
   }
 
