@@ -169,8 +169,9 @@ export interface RunResult {
   readonly topology: string;
 }
 
-const KIND_TIMER = 0;
-const KIND_STEP = 1;
+// Queue entry kinds, numbered in their order at one instant: source steps, then timers, then the stop.
+const KIND_STEP = 0;
+const KIND_TIMER = 1;
 const KIND_STOP = 2;
 
 const TAYLOR_MAX = 40;
@@ -185,6 +186,38 @@ const FACT_INV: Float64Array = (() => {
 function badTimer(tag: number, cycle: number, offsetS: number, nowS: number): RangeError {
   if (!Number.isInteger(cycle) || !Number.isFinite(offsetS)) return new RangeError(`timer ${tag}: cycle must be an integer and offsetS finite, got ${String(cycle)}, ${String(offsetS)}`);
   return new RangeError(`timer ${tag}: scheduled in the past (cycle ${cycle} + ${offsetS} s is before t = ${nowS} s)`);
+}
+
+/**
+ * out[i] = sum_j E[i n + j] w[j] for the nx top rows (the sums in the order of a plain loop
+ * from s = 0, so that every size gives the same bits); returns the sum of the outputs (a
+ * finiteness probe). Four and six columns, the common small circuits, avoid the inner loop.
+ */
+function topRows(E: Float64Array, nx: number, n: number, w: Float64Array, out: Float64Array): number {
+  let sum = 0;
+  if (n === 4) {
+    const a0 = w[0]!, a1 = w[1]!, a2 = w[2]!, a3 = w[3]!;
+    for (let i = 0, o = 0; i < nx; i++, o += 4) {
+      const s = 0 + E[o]! * a0 + E[o + 1]! * a1 + E[o + 2]! * a2 + E[o + 3]! * a3;
+      out[i] = s;
+      sum += s;
+    }
+  } else if (n === 6) {
+    const a0 = w[0]!, a1 = w[1]!, a2 = w[2]!, a3 = w[3]!, a4 = w[4]!, a5 = w[5]!;
+    for (let i = 0, o = 0; i < nx; i++, o += 6) {
+      const s = 0 + E[o]! * a0 + E[o + 1]! * a1 + E[o + 2]! * a2 + E[o + 3]! * a3 + E[o + 4]! * a4 + E[o + 5]! * a5;
+      out[i] = s;
+      sum += s;
+    }
+  } else {
+    for (let i = 0, o = 0; i < nx; i++, o += n) {
+      let s = 0;
+      for (let j = 0; j < n; j++) s += E[o + j]! * w[j]!;
+      out[i] = s;
+      sum += s;
+    }
+  }
+  return sum;
 }
 
 /** A copy of a typed array with twice the length (the event queue grows rarely). */
@@ -509,12 +542,7 @@ export class Simulation {
   // event queue
 
   private push(cyc: number, off: number, kind: number, tag: number): void {
-    if (this.qLen === this.qCyc.length) {
-      this.qCyc = grown(this.qCyc);
-      this.qOff = grown(this.qOff);
-      this.qKind = grown(this.qKind);
-      this.qTag = grown(this.qTag);
-    }
+    if (this.qLen === this.qCyc.length) this.growQueue();
     // normalise the offset into [0, tb)
     const tb = this.tb;
     if (off >= tb || off < 0) {
@@ -524,30 +552,18 @@ export class Simulation {
       if (off < 0) off = 0;
     }
     // The queue is kept sorted latest first, so that the earliest entry is the last one and
-    // taking it costs nothing. Ties: source steps, then timers, then the stop; entries of equal
-    // rank in scheduling order (a new entry goes after every equal one).
+    // taking it costs nothing. At one instant the kinds go in their numeric order, entries of
+    // one kind in scheduling order (a new entry goes after every equal one). One pass from the
+    // earliest end moves the entries due before the new one up by a slot.
     const qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
-    const rank = kind === KIND_STEP ? 0 : kind === KIND_TIMER ? 1 : 2;
     let j = this.qLen;
-    while (j > 0) {
-      const cj = qCyc[j - 1]!;
-      if (cj > cyc) break;
-      if (cj === cyc) {
-        const oj = qOff[j - 1]!;
-        if (oj > off) break;
-        if (oj === off) {
-          const kj = qKind[j - 1]!;
-          const rj = kj === KIND_STEP ? 0 : kj === KIND_TIMER ? 1 : 2;
-          if (rj > rank) break;
-        }
-      }
-      j--;
-    }
-    for (let i = this.qLen; i > j; i--) {
-      qCyc[i] = qCyc[i - 1]!;
-      qOff[i] = qOff[i - 1]!;
-      qKind[i] = qKind[i - 1]!;
-      qTag[i] = qTag[i - 1]!;
+    for (; j > 0; j--) {
+      const cj = qCyc[j - 1]!, oj = qOff[j - 1]!, kj = qKind[j - 1]!;
+      if (cj > cyc || (cj === cyc && (oj > off || (oj === off && kj > kind)))) break;
+      qCyc[j] = cj;
+      qOff[j] = oj;
+      qKind[j] = kj;
+      qTag[j] = qTag[j - 1]!;
     }
     qCyc[j] = cyc;
     qOff[j] = off;
@@ -556,23 +572,27 @@ export class Simulation {
     this.qLen++;
   }
 
+  private growQueue(): void {
+    this.qCyc = grown(this.qCyc);
+    this.qOff = grown(this.qOff);
+    this.qKind = grown(this.qKind);
+    this.qTag = grown(this.qTag);
+  }
+
   private removeTimer(tag: number): void {
-    const qKind = this.qKind, qTag = this.qTag;
+    const qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
     const len = this.qLen;
-    for (let i = 0; i < len; i++) {
-      if (qKind[i] === KIND_TIMER && qTag[i] === tag) {
-        const qCyc = this.qCyc, qOff = this.qOff;
-        // shift down to keep the order
-        for (let k = i + 1; k < len; k++) {
-          qCyc[k - 1] = qCyc[k]!;
-          qOff[k - 1] = qOff[k]!;
-          qKind[k - 1] = qKind[k]!;
-          qTag[k - 1] = qTag[k]!;
-        }
-        this.qLen = len - 1;
-        return;
-      }
+    let i = 0;
+    while (i < len && !(qKind[i] === KIND_TIMER && qTag[i] === tag)) i++;
+    if (i === len) return;
+    // shift down to keep the order
+    for (i++; i < len; i++) {
+      qCyc[i - 1] = qCyc[i]!;
+      qOff[i - 1] = qOff[i]!;
+      qKind[i - 1] = qKind[i]!;
+      qTag[i - 1] = qTag[i]!;
     }
+    this.qLen = len - 1;
   }
 
   // ----------------------------------------------------------------------------------------
@@ -877,23 +897,13 @@ export class Simulation {
         return;
       }
     }
-    for (let i = 0; i < nx; i++) {
-      let s = 0;
-      const o = i * n;
-      for (let j = 0; j < n; j++) s += E[o + j]! * w0[j]!;
-      out[i] = s;
-    }
+    topRows(E, nx, n, w0, out);
     for (let j = nx; j < n; j++) out[j] = w0[j]!;
   }
 
   private matvec(E: Float64Array, w0: Float64Array, out: Float64Array): void {
     const n = this.n, nx = this.nx;
-    for (let i = 0; i < nx; i++) {
-      let s = 0;
-      const o = i * n;
-      for (let j = 0; j < n; j++) s += E[o + j]! * w0[j]!;
-      out[i] = s;
-    }
+    topRows(E, nx, n, w0, out);
     for (let j = nx; j < n; j++) out[j] = w0[j]!;
   }
 
@@ -1541,16 +1551,7 @@ export class Simulation {
       const t = this.topo;
       if (h > 0) {
         if (t.lastH !== h) return;
-        const E = t.lastE!;
-        let sum = 0;
-        for (let i = 0; i < nx; i++) {
-          let s = 0;
-          const o = i * n;
-          for (let j = 0; j < n; j++) s += E[o + j]! * w[j]!;
-          w1[i] = s;
-          sum += s;
-        }
-        if (!Number.isFinite(sum)) return;
+        if (!Number.isFinite(topRows(t.lastE!, nx, n, w, w1))) return;
         for (let i = 0; i < nx; i++) w[i] = w1[i]!;
         counters.segments++;
         counters.propagatorCacheHits++;
