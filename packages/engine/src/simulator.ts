@@ -329,6 +329,8 @@ export class Simulation {
   private readonly locWb: Float64Array;
   private readonly locFound: Float64Array;
   private readonly locBest: Float64Array;
+  /** arguments of maybeRising */
+  private readonly screen = new Float64Array(6);
   // settings
   private readonly iTol: number;
   private readonly vTol: number;
@@ -384,7 +386,12 @@ export class Simulation {
   private inStart = false;
   private stopRequest: string | null = null;
   private instantCount = 0;
-  private instantGuards = new Set<string>();
+  /** owners of the guards fired at this instant, for the chattering message (a Set would reallocate on every clear) */
+  private instantGuards = new Int32Array(8);
+  private instantGuardCount = 0;
+  /** topology keys met in one consistent-switching step (reused: settle runs at every event) */
+  private visited = new Int32Array(8);
+  private visitedCount = 0;
   private readonly stepTimes: { atS: number; input: number; value: number }[];
 
   constructor(model: CircuitModel | CircuitSpec, options: RunOptions) {
@@ -933,7 +940,7 @@ export class Simulation {
         V[cur + i] = s;
         out[i]! += s;
       }
-      for (let j = nx; j < n; j++) V[cur + j] = 0;
+      // V[cur + j] for j >= nx stays 0 from the allocation: inputs are constant
     }
     void keep;
     return K;
@@ -984,7 +991,10 @@ export class Simulation {
    * zero crossing in (0, h]? Uses the values and slopes at both ends, the extrema of the cubic
    * Hermite interpolant, and a bound on its error from the fourth derivative at both ends.
    */
-  private static maybeRising(f0: number, f1: number, d0: number, d1: number, e4: number, h: number): boolean {
+  private static maybeRising(v: Float64Array): boolean {
+    // arguments come in a scratch array: six doubles passed to a call that is not inlined would
+    // each be boxed on the heap
+    const f0 = v[0]!, f1 = v[1]!, d0 = v[2]!, d1 = v[3]!, e4 = v[4]!, h = v[5]!;
     if (f0 < 0 && f1 >= 0) return true;
     // Hermite cubic on s in [0, 1]: p(0) = f0, p(1) = f1, p'(0) = d0 h, p'(1) = d1 h
     const m0 = d0 * h, m1 = d1 * h;
@@ -1027,7 +1037,7 @@ export class Simulation {
    * polished by safeguarded Newton on the polynomial.
    */
   private locate(t: Topology, g: ActiveGuard, sign: number, w0: Float64Array, h: number, startAbove: boolean): number {
-    const n = this.n;
+    const n = this.n, nx = this.nx;
     const pieceMax = t.normA > 0 ? 1 / t.normA : h;
     const wa = this.locWa, wb = this.locWb, pc = this.polyC, V = this.taylorV, row = g.row;
     for (let j = 0; j < n; j++) wa[j] = w0[j]!;
@@ -1036,10 +1046,17 @@ export class Simulation {
     for (let pieces = 0; a < h && pieces < 10_000_000; pieces++) {
       const len = Math.min(pieceMax, h - a);
       const K = this.taylor(t, len, wa, wb, 1);
-      for (let k = 0; k <= K; k++) {
+      {
+        let s = 0;
+        for (let j = 0; j < n; j++) s += row[j]! * V[j]!;
+        pc[0] = sign * s;
+      }
+      // beyond the first term only the states are non-zero: adding the zero products of the
+      // input columns would not change a sum that starts at +0 (it is never -0)
+      for (let k = 1; k <= K; k++) {
         let s = 0;
         const o = k * n;
-        for (let j = 0; j < n; j++) s += row[j]! * V[o + j]!;
+        for (let j = 0; j < nx; j++) s += row[j]! * V[o + j]!;
         pc[k] = sign * s;
       }
       const SAMPLES = 16;
@@ -1073,11 +1090,13 @@ export class Simulation {
           }
           // the state at the root from the same Taylor vectors: sum x^k V_k
           const out = this.locFound;
-          for (let j = 0; j < n; j++) {
+          for (let j = 0; j < nx; j++) {
             let v = V[K * n + j]!;
             for (let k = K - 1; k >= 0; k--) v = v * x + V[k * n + j]!;
             out[j] = v;
           }
+          // the same Horner sum for an input: zero terms, then 0 * x + w0[j] (x > 0)
+          for (let j = nx; j < n; j++) out[j] = 0 + V[j]!;
           return a + x * len;
         }
         sPrev = sx;
@@ -1095,7 +1114,7 @@ export class Simulation {
   private settle(): void {
     const c = this.c;
     const w = this.w;
-    let visited: number[] | null = null;
+    this.visitedCount = 0;
     for (let iter = 0; ; iter++) {
       if (iter > this.maxFlips) {
         throw new SimulationError('inconsistent-switching', `no consistent conduction state found after ${this.maxFlips} device changes at t = ${this.timeS} s (last [${describeKey(c, this.key)}])`, c.devices.map((d) => d.id), this.timeS);
@@ -1122,13 +1141,13 @@ export class Simulation {
             }
           }
           if (best < 0) throw new SimulationError(err.code, `${err.message} at t = ${this.timeS} s (no diode can take its current)`, err.elements, this.timeS);
-          visited = this.flip(best, visited);
+          this.flip(best);
           continue;
         }
         const loop = err instanceof SimulationError && err.code === 'shoot-through' ? err.elements : null;
         const d = loop === null ? -1 : c.devices.findIndex((dev, i) => dev.kind === 'diode' && ((this.key >>> i) & 1) === 1 && loop.includes(dev.id));
         if (d < 0) throw err;
-        visited = this.flip(d, visited);
+        this.flip(d);
         continue;
       }
       // inductors with no path
@@ -1164,7 +1183,7 @@ export class Simulation {
             this.timeS,
           );
         }
-        visited = this.flip(best, visited);
+        this.flip(best);
         continue;
       }
       for (let i = 0; i < held.length; i++) w[held[i]!] = 0;
@@ -1188,25 +1207,28 @@ export class Simulation {
         }
       }
       if (worst < 0) return;
-      visited = this.flip(worst, visited);
+      this.flip(worst);
     }
   }
 
-  private flip(d: number, visited: number[] | null): number[] {
-    const v = visited ?? [this.key];
+  private flip(d: number): void {
+    if (this.visitedCount === 0) this.visited[this.visitedCount++] = this.key;
     this.key ^= 1 << d;
-    if (v.includes(this.key)) {
-      const c = this.c;
-      const involved = [...new Set(v.map((k) => k ^ this.key).reduce((a, b) => a | b, 0) ? c.devices.filter((_, i) => v.some((k) => ((k ^ this.key) >>> i) & 1)).map((x) => x.id) : [c.devices[d]!.id])];
-      throw new SimulationError(
-        'inconsistent-switching',
-        `consistent switching cycles between conduction states of ${involved.join(', ')} at t = ${this.timeS} s`,
-        involved,
-        this.timeS,
-      );
-    }
-    v.push(this.key);
-    return v;
+    for (let i = 0; i < this.visitedCount; i++) if (this.visited[i] === this.key) this.inconsistent(d);
+    if (this.visitedCount === this.visited.length) this.visited = grown(this.visited);
+    this.visited[this.visitedCount++] = this.key;
+  }
+
+  private inconsistent(d: number): never {
+    const v = Array.from(this.visited.subarray(0, this.visitedCount));
+    const c = this.c;
+    const involved = [...new Set(v.map((k) => k ^ this.key).reduce((a, b) => a | b, 0) ? c.devices.filter((_, i) => v.some((k) => ((k ^ this.key) >>> i) & 1)).map((x) => x.id) : [c.devices[d]!.id])];
+    throw new SimulationError(
+      'inconsistent-switching',
+      `consistent switching cycles between conduction states of ${involved.join(', ')} at t = ${this.timeS} s`,
+      involved,
+      this.timeS,
+    );
   }
 
   // ----------------------------------------------------------------------------------------
@@ -1420,7 +1442,13 @@ export class Simulation {
     let guardTau = -1;
     let guardIdx = -1;
     if (h > 0) {
-      this.propagate(t, h, w0, w1);
+      if (this.useCache && t.lastH === h) {
+        // the common case of propagate(), without the call
+        this.counters.propagatorCacheHits++;
+        const nx = this.nx, n = this.n;
+        topRows(t.lastE!, nx, n, w0, w1);
+        for (let j = nx; j < n; j++) w1[j] = w0[j]!;
+      } else this.propagate(t, h, w0, w1);
       this.counters.segments++;
       // guard screening
       const act = this.active;
@@ -1439,7 +1467,14 @@ export class Simulation {
           // count it as already crossed when it moves upward
           const startAbove = sf0 > 0 || (sf0 === 0 && sd0 >= 0) || (sd0 > 0 && Math.abs(sf0) <= 8e-16 * Simulation.dotScale(g.row, w0));
           const f0n = startAbove ? Math.max(sf0, 0) : sf0;
-          if (!Simulation.maybeRising(f0n, sign * f1, sd0, sign * d1, e4, h)) continue;
+          const sc = this.screen;
+          sc[0] = f0n;
+          sc[1] = sign * f1;
+          sc[2] = sd0;
+          sc[3] = sign * d1;
+          sc[4] = e4;
+          sc[5] = h;
+          if (!Simulation.maybeRising(sc)) continue;
           const limit = guardTau >= 0 ? guardTau : h;
           const tau = this.locate(t, g, sign, w0, limit, startAbove);
           if (tau >= 0 && (guardTau < 0 || tau < guardTau)) {
@@ -1456,7 +1491,7 @@ export class Simulation {
         for (let j = 0; j < this.n; j++) w1[j] = this.locBest[j]!;
         const prevCyc = this.cyc, prevOff = this.off;
         tr?.segment?.(t.key, tau, w0);
-        this.accumulate(t, tau, w0);
+        if (this.intRefs.length !== 0) this.accumulate(t, tau, w0);
         const startT = this.timeS;
         this.emitGridUpTo(startT, tau, t, w0);
         this.off += tau;
@@ -1467,7 +1502,7 @@ export class Simulation {
         }
         if (this.cyc !== prevCyc || this.off !== prevOff) {
           this.instantCount = 0;
-          if (this.instantGuards.size > 0) this.instantGuards.clear();
+          this.instantGuardCount = 0;
         }
         this.checkFinite(w1, t);
         for (let j = 0; j < this.n; j++) w0[j] = w1[j]!;
@@ -1478,14 +1513,14 @@ export class Simulation {
         return;
       }
       tr?.segment?.(t.key, h, w0);
-      this.accumulate(t, h, w0);
+      if (this.intRefs.length !== 0) this.accumulate(t, h, w0);
       this.emitGridUpTo(this.timeS, h, t, w0);
       this.checkFinite(w1, t);
       for (let j = 0; j < this.nx; j++) w0[j] = w1[j]!;
       this.cyc = c1;
       this.off = o1;
       this.instantCount = 0;
-      if (this.instantGuards.size > 0) this.instantGuards.clear();
+      this.instantGuardCount = 0;
       if (guardTau >= 0) {
         // a guard at the segment end: handled together with the scheduled events there
         this.onInstant();
@@ -1558,7 +1593,7 @@ export class Simulation {
         this.cyc = c1;
         this.off = o1;
         this.instantCount = 0;
-        if (this.instantGuards.size > 0) this.instantGuards.clear();
+        this.instantGuardCount = 0;
       } else {
         this.cyc = c1;
         this.off = o1;
@@ -1608,7 +1643,12 @@ export class Simulation {
   private onInstant(): void {
     this.instantCount++;
     if (this.instantCount > this.maxPerInstant) {
-      const names = [...this.instantGuards];
+      const names: string[] = [];
+      for (let i = 0; i < this.instantGuardCount; i++) {
+        const o = this.instantGuards[i]!;
+        const name = o < 0 ? this.c.devices[-o - 1]!.id : `controller guard ${o}`;
+        if (!names.includes(name)) names.push(name);
+      }
       throw new SimulationError(
         'chattering',
         `chattering: more than ${this.maxPerInstant} events at t = ${this.timeS} s without time advancing${names.length ? ` (guards: ${names.join(', ')})` : ''}`,
@@ -1618,17 +1658,22 @@ export class Simulation {
     }
   }
 
+  private noteInstantGuard(owner: number): void {
+    if (this.instantGuardCount === this.instantGuards.length) this.instantGuards = grown(this.instantGuards);
+    this.instantGuards[this.instantGuardCount++] = owner;
+  }
+
   private fireGuard(g: ActiveGuard): void {
     this.counters.guardEvents++;
     this.counters.events++;
     const tr = this.options.trace;
     if (g.owner < 0) {
       const d = -g.owner - 1;
-      this.instantGuards.add(this.c.devices[d]!.id);
+      this.noteInstantGuard(g.owner);
       tr?.guard?.({ timeS: this.timeS, before: this.key, row: g.row, which: 'device', index: d });
       this.key ^= 1 << d;
     } else {
-      this.instantGuards.add(`controller guard ${g.owner}`);
+      this.noteInstantGuard(g.owner);
       tr?.guard?.({ timeS: this.timeS, before: this.key, row: g.row, which: 'controller', index: g.owner });
       this.ctrl?.onEvent(this.ctx, this.guardTag[g.owner]!);
     }
