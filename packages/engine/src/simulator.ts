@@ -190,34 +190,27 @@ function badTimer(tag: number, cycle: number, offsetS: number, nowS: number): Ra
 
 /**
  * out[i] = sum_j E[i n + j] w[j] for the nx top rows (the sums in the order of a plain loop
- * from s = 0, so that every size gives the same bits); returns the sum of the outputs (a
- * finiteness probe). Four and six columns, the common small circuits, avoid the inner loop.
+ * from s = 0, so that every size gives the same bits). Four and six columns, the common small
+ * circuits, avoid the inner loop.
  */
-function topRows(E: Float64Array, nx: number, n: number, w: Float64Array, out: Float64Array): number {
-  let sum = 0;
+function topRows(E: Float64Array, nx: number, n: number, w: Float64Array, out: Float64Array): void {
   if (n === 4) {
     const a0 = w[0]!, a1 = w[1]!, a2 = w[2]!, a3 = w[3]!;
     for (let i = 0, o = 0; i < nx; i++, o += 4) {
-      const s = 0 + E[o]! * a0 + E[o + 1]! * a1 + E[o + 2]! * a2 + E[o + 3]! * a3;
-      out[i] = s;
-      sum += s;
+      out[i] = 0 + E[o]! * a0 + E[o + 1]! * a1 + E[o + 2]! * a2 + E[o + 3]! * a3;
     }
   } else if (n === 6) {
     const a0 = w[0]!, a1 = w[1]!, a2 = w[2]!, a3 = w[3]!, a4 = w[4]!, a5 = w[5]!;
     for (let i = 0, o = 0; i < nx; i++, o += 6) {
-      const s = 0 + E[o]! * a0 + E[o + 1]! * a1 + E[o + 2]! * a2 + E[o + 3]! * a3 + E[o + 4]! * a4 + E[o + 5]! * a5;
-      out[i] = s;
-      sum += s;
+      out[i] = 0 + E[o]! * a0 + E[o + 1]! * a1 + E[o + 2]! * a2 + E[o + 3]! * a3 + E[o + 4]! * a4 + E[o + 5]! * a5;
     }
   } else {
     for (let i = 0, o = 0; i < nx; i++, o += n) {
       let s = 0;
       for (let j = 0; j < n; j++) s += E[o + j]! * w[j]!;
       out[i] = s;
-      sum += s;
     }
   }
-  return sum;
 }
 
 /** A copy of a typed array with twice the length (the event queue grows rarely). */
@@ -344,9 +337,11 @@ export class Simulation {
   private qKind = new Int32Array(16);
   private qTag = new Float64Array(16);
   private qLen = 0;
+  /** queue changes recorded, not yet applied (see push): kind, tag, cycle, offset */
+  private pend = new Float64Array(32);
+  private pLen = 0;
   // gates
   private readonly gateMask: Int32Array;
-  private readonly gateOn: Uint8Array;
   private readonly channelMask: number;
   private readonly diodeCount: number;
   /** topologies by key for circuits with at most 16 devices (a direct index beats a Map lookup) */
@@ -427,7 +422,6 @@ export class Simulation {
     if (options.initialState !== undefined) this.applyInitial(options.initialState);
 
     this.gateMask = new Int32Array(c.gates.length);
-    this.gateOn = new Uint8Array(c.gates.length);
     let cm = 0;
     c.devices.forEach((d, i) => {
       if (d.kind === 'channel') {
@@ -435,7 +429,6 @@ export class Simulation {
         cm |= 1 << i;
         const spec = c.spec.elements.find((e) => e.id === d.element);
         if (spec?.kind === 'switch' && spec.initiallyOn) {
-          this.gateOn[d.gate] = 1;
           this.key |= 1 << i;
         }
       }
@@ -548,58 +541,83 @@ export class Simulation {
   // ----------------------------------------------------------------------------------------
   // event queue
 
+  /**
+   * Records a queue change: an entry of `kind` at (cyc, off); a timer replaces the pending timer
+   * with its tag, and a timer with offset NaN only cancels. Changes are applied in order by
+   * applyQueued() before the queue is next read, which gives the queue that applying them at
+   * once would give; recording is small enough to be inlined into the controller's calls.
+   */
   private push(cyc: number, off: number, kind: number, tag: number): void {
-    if (this.qLen === this.qCyc.length) this.growQueue();
-    // normalise the offset into [0, tb)
+    const i = this.pLen;
+    let p = this.pend;
+    if (i === p.length) p = this.pend = grown(p);
+    p[i] = kind;
+    p[i + 1] = tag;
+    p[i + 2] = cyc;
+    p[i + 3] = off;
+    this.pLen = i + 4;
+  }
+
+  /**
+   * Applies the recorded queue changes. The queue is kept sorted latest first, so that the
+   * earliest entry is the last one and taking it costs nothing. At one instant the kinds go in
+   * their numeric order, entries of one kind in scheduling order (a new entry goes after every
+   * equal one). One function on purpose: too large to be inlined, it leaves the inlining budget
+   * of the event loop to the controller's calls, and takes no arguments that would be boxed.
+   */
+  private applyQueued(): void {
+    const count = this.pLen, pend = this.pend;
     const tb = this.tb;
-    if (off >= tb || off < 0) {
-      const k = Math.floor(off / tb);
-      cyc += k;
-      off -= k * tb;
-      if (off < 0) off = 0;
+    for (let p = 0; p < count; p += 4) {
+      const kind = pend[p]!, tag = pend[p + 1]!;
+      let cyc = pend[p + 2]!, off = pend[p + 3]!;
+      let qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
+      let len = this.qLen;
+      if (kind === KIND_TIMER) {
+        // drop the pending timer with this tag, shifting the later part down to keep the order
+        let i = 0;
+        while (i < len && !(qKind[i] === KIND_TIMER && qTag[i] === tag)) i++;
+        if (i < len) {
+          for (i++; i < len; i++) {
+            qCyc[i - 1] = qCyc[i]!;
+            qOff[i - 1] = qOff[i]!;
+            qKind[i - 1] = qKind[i]!;
+            qTag[i - 1] = qTag[i]!;
+          }
+          this.qLen = --len;
+        }
+        if (off !== off) continue; // cancelled
+      }
+      if (len === qCyc.length) {
+        this.qCyc = qCyc = grown(qCyc);
+        this.qOff = qOff = grown(qOff);
+        this.qKind = qKind = grown(qKind);
+        this.qTag = qTag = grown(qTag);
+      }
+      // normalise the offset into [0, tb)
+      if (off >= tb || off < 0) {
+        const k = Math.floor(off / tb);
+        cyc += k;
+        off -= k * tb;
+        if (off < 0) off = 0;
+      }
+      // one pass from the earliest end moves the entries due before the new one up by a slot
+      let j = len;
+      for (; j > 0; j--) {
+        const cj = qCyc[j - 1]!, oj = qOff[j - 1]!, kj = qKind[j - 1]!;
+        if (cj > cyc || (cj === cyc && (oj > off || (oj === off && kj > kind)))) break;
+        qCyc[j] = cj;
+        qOff[j] = oj;
+        qKind[j] = kj;
+        qTag[j] = qTag[j - 1]!;
+      }
+      qCyc[j] = cyc;
+      qOff[j] = off;
+      qKind[j] = kind;
+      qTag[j] = tag;
+      this.qLen = len + 1;
     }
-    // The queue is kept sorted latest first, so that the earliest entry is the last one and
-    // taking it costs nothing. At one instant the kinds go in their numeric order, entries of
-    // one kind in scheduling order (a new entry goes after every equal one). One pass from the
-    // earliest end moves the entries due before the new one up by a slot.
-    const qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
-    let j = this.qLen;
-    for (; j > 0; j--) {
-      const cj = qCyc[j - 1]!, oj = qOff[j - 1]!, kj = qKind[j - 1]!;
-      if (cj > cyc || (cj === cyc && (oj > off || (oj === off && kj > kind)))) break;
-      qCyc[j] = cj;
-      qOff[j] = oj;
-      qKind[j] = kj;
-      qTag[j] = qTag[j - 1]!;
-    }
-    qCyc[j] = cyc;
-    qOff[j] = off;
-    qKind[j] = kind;
-    qTag[j] = tag;
-    this.qLen++;
-  }
-
-  private growQueue(): void {
-    this.qCyc = grown(this.qCyc);
-    this.qOff = grown(this.qOff);
-    this.qKind = grown(this.qKind);
-    this.qTag = grown(this.qTag);
-  }
-
-  private removeTimer(tag: number): void {
-    const qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
-    const len = this.qLen;
-    let i = 0;
-    while (i < len && !(qKind[i] === KIND_TIMER && qTag[i] === tag)) i++;
-    if (i === len) return;
-    // shift down to keep the order
-    for (i++; i < len; i++) {
-      qCyc[i - 1] = qCyc[i]!;
-      qOff[i - 1] = qOff[i]!;
-      qKind[i - 1] = qKind[i]!;
-      qTag[i - 1] = qTag[i]!;
-    }
-    this.qLen = len - 1;
+    this.pLen = 0;
   }
 
   // ----------------------------------------------------------------------------------------
@@ -655,38 +673,36 @@ export class Simulation {
       return g;
     }
     setGate(g: number, on: boolean): void {
+      // short, so that it is inlined into the controller's event handler
       const sim = this.sim;
-      const mask = sim.gateMask[g]!;
-      const key = sim.key;
-      if (on) {
-        sim.gateOn[g] = 1;
-        sim.key = key | mask;
-      } else {
-        if (key & mask) sim.turnedOff |= key & mask;
-        sim.gateOn[g] = 0;
+      const mask = sim.gateMask[g]!, key = sim.key;
+      if (on) sim.key = key | mask;
+      else {
+        sim.turnedOff |= key & mask;
         sim.key = key & ~mask;
       }
     }
     isGateOn(g: number): boolean {
-      return this.sim.gateOn[g] === 1;
+      // only setGate changes switch channel bits (consistent switching flips diodes), and it
+      // sets or clears all the channels of a gate together
+      return (this.sim.key & this.sim.gateMask[g]!) !== 0;
     }
     at(tag: number, cycle: number, offsetS: number): void {
       const sim = this.sim;
-      // one combined test on the common path; the messages are built only on failure
-      if (!(Number.isInteger(cycle) && Number.isFinite(offsetS) && (cycle - sim.cyc) * sim.tb + (offsetS - sim.off) >= 0)) {
+      // one combined test (offsetS - offsetS is 0 only for finite values), short so that it is
+      // inlined; the messages are built only on failure
+      if (!(Number.isInteger(cycle) && offsetS - offsetS === 0 && (cycle - sim.cyc) * sim.tb + (offsetS - sim.off) >= 0)) {
         throw badTimer(tag, cycle, offsetS, sim.timeS);
       }
-      sim.removeTimer(tag);
       sim.push(cycle, offsetS, KIND_TIMER, tag);
     }
     after(tag: number, delayS: number): void {
       const sim = this.sim;
       if (!(delayS >= 0 && delayS < Infinity)) throw new RangeError(`timer ${tag}: delay must be a finite time >= 0 s, got ${String(delayS)}`);
-      sim.removeTimer(tag);
       sim.push(sim.cyc, sim.off + delayS, KIND_TIMER, tag);
     }
     cancel(tag: number): void {
-      this.sim.removeTimer(tag);
+      this.sim.push(0, Number.NaN, KIND_TIMER, tag);
     }
     guard(spec: GuardSpec): number {
       if (!this.sim.inStart) throw new Error('guards are defined in Controller.start');
@@ -1432,6 +1448,7 @@ export class Simulation {
   }
 
   private stepInner(): void {
+    if (this.pLen !== 0) this.applyQueued();
     if (this.activeDirty) this.rebuildActive();
     const qi = this.qLen - 1;
     const c1 = this.qCyc[qi]!, o1 = this.qOff[qi]!;
@@ -1541,6 +1558,7 @@ export class Simulation {
   /** Handles every scheduled event at the current instant, in the defined order, then switches. */
   private handleScheduled(before: number): void {
     for (;;) {
+      if (this.pLen !== 0) this.applyQueued();
       const i = this.qLen - 1;
       if (i < 0) break;
       if (this.qCyc[i] !== this.cyc || this.qOff[i] !== this.off) break;
@@ -1580,13 +1598,29 @@ export class Simulation {
     for (;;) {
       if (this.activeDirty) this.rebuildActive();
       if (this.active.length !== 0 || this.stopRequest !== null || this.status !== 'running') return;
+      if (this.pLen !== 0) this.applyQueued();
       const qi = this.qLen - 1;
       const c1 = this.qCyc[qi]!, o1 = this.qOff[qi]!;
       const h = (c1 - this.cyc) * tb + (o1 - this.off);
       const t = this.topo;
       if (h > 0) {
         if (t.lastH !== h) return;
-        if (!Number.isFinite(topRows(t.lastE!, nx, n, w, w1))) return;
+        const E = t.lastE!;
+        let sum = 0;
+        if (n === 4 && nx === 2) {
+          // the smallest stage written out here: a call would not be inlined within the
+          // budget that the controller's calls need
+          const a0 = w[0]!, a1 = w[1]!, a2 = w[2]!, a3 = w[3]!;
+          const s0 = 0 + E[0]! * a0 + E[1]! * a1 + E[2]! * a2 + E[3]! * a3;
+          const s1 = 0 + E[4]! * a0 + E[5]! * a1 + E[6]! * a2 + E[7]! * a3;
+          w1[0] = s0;
+          w1[1] = s1;
+          sum = s0 + s1;
+        } else {
+          topRows(E, nx, n, w, w1);
+          for (let i = 0; i < nx; i++) sum += w1[i]!;
+        }
+        if (!Number.isFinite(sum)) return;
         for (let i = 0; i < nx; i++) w[i] = w1[i]!;
         counters.segments++;
         counters.propagatorCacheHits++;
@@ -1604,6 +1638,7 @@ export class Simulation {
       const before = t.key;
       let general = ctrl === undefined;
       for (;;) {
+        if (this.pLen !== 0) this.applyQueued();
         const i = this.qLen - 1;
         if (i < 0 || this.qCyc[i] !== c1 || this.qOff[i] !== o1) break;
         if (this.qKind[i] !== KIND_TIMER || ctrl === undefined) {
