@@ -1075,10 +1075,38 @@ export class Simulation {
         for (let j = 0; j < nx; j++) s += row[j]! * V[o + j]!;
         pc[k] = sign * s;
       }
+      // A polynomial whose derivative keeps one sign on [0, 1] (the slope term outweighs every
+      // other term's largest possible slope, k |c_k|) crosses zero at most once there: its
+      // value at s = 1 (the scan's last sample, same bits) then decides the piece, and a
+      // crossing is bracketed by [0, 1] without the 16-sample scan. A rigorous test on the
+      // polynomial itself, so that double crossings still go to the scan.
+      const f0p = pc[0]!;
+      let slopeRest = 0;
+      let f1p = pc[K]!;
+      for (let k = K - 1; k >= 0; k--) f1p = f1p * 1 + pc[k]!;
+      for (let k = 2; k <= K; k++) slopeRest += k * Math.abs(pc[k]!);
+      const p1 = pc[1]!;
+      const margin = slopeRest + 1e-12 * Math.abs(p1);
+      const rising = p1 > margin, falling = -p1 > margin;
+      let first = 1;
+      if (rising || falling) {
+        if (above) {
+          // from at or above zero, a monotone piece has no upward crossing; it ends below
+          // exactly when its last sample does
+          if (f0p >= 0 || falling) {
+            if (f1p < 0) above = false;
+            first = 17;
+          }
+        } else if (falling || f1p < 0) {
+          first = 17; // stays below zero over the piece
+        } else {
+          first = 16; // one crossing in [0, 1]: the last scan step brackets it from s = 0
+        }
+      }
       const SAMPLES = 16;
       let sPrev = 0;
-      let fPrev = pc[0]!;
-      for (let i = 1; i <= SAMPLES; i++) {
+      let fPrev = f0p;
+      for (let i = first; i <= SAMPLES; i++) {
         const sx = i / SAMPLES;
         let f = pc[K]!;
         for (let k = K - 1; k >= 0; k--) f = f * sx + pc[k]!;
