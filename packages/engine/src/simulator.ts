@@ -1127,6 +1127,15 @@ export class Simulation {
             if (fx < 0) lo = x;
             else hi = x;
             let xn = dx !== 0 ? x - fx / dx : 0.5 * (lo + hi);
+            if (fx === 0) {
+              // An exact zero sets hi = x and every later Newton step lands on hi, so the loop
+              // used to halve from the far end for dozens of steps before returning a point of
+              // the final 1e-15 bracket below the zero; that bracket is taken at once (the same
+              // convention: its midpoint ends the loop).
+              const lo2 = x - 1e-15 * x;
+              if (lo2 > lo) lo = lo2;
+              xn = 0.5 * (lo + hi);
+            }
             if (!(xn > lo && xn < hi)) xn = 0.5 * (lo + hi);
             const done = Math.abs(xn - x) <= 1e-15 * xn || hi - lo <= 1e-15 * hi;
             x = xn;
