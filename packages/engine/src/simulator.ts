@@ -2,7 +2,7 @@ import { compileCircuit, type CircuitSpec, type CompiledCircuit } from './circui
 import { SimulationError } from './errors.ts';
 import { expm } from './expm.ts';
 import { SignalResolver, type LinearRef, type SignalInfo } from './signals.ts';
-import { buildTopology, describeKey, type Topology } from './topology.ts';
+import { buildTopology, describeKey, DURATION_SLOTS, type Topology } from './topology.ts';
 
 /** Direction of a guard crossing. */
 export type GuardDirection = 'rising' | 'falling' | 'either';
@@ -181,6 +181,11 @@ const FACT_INV: Float64Array = (() => {
   for (let k = 1; k < f.length; k++) f[k] = f[k - 1]! / k;
   return f;
 })();
+
+/** Scratch for hashing a duration's bits (one per module: never in use twice at once). */
+const DUR_F = new Float64Array(1);
+const DUR_I = new Int32Array(DUR_F.buffer);
+const DUR_SHIFT = 32 - Math.log2(DURATION_SLOTS);
 
 /** The error of an invalid `at` call (kept out of the hot method). */
 function badTimer(tag: number, cycle: number, offsetS: number, nowS: number): RangeError {
@@ -863,11 +868,30 @@ export class Simulation {
   private propagate(t: Topology, h: number, w0: Float64Array, out: Float64Array): void {
     const n = this.n, nx = this.nx;
     let E: Float64Array | null | undefined = null;
+    // home slot of h in the duration tables of the topology (a hash of its bits)
+    DUR_F[0] = h;
+    const home = Math.imul(DUR_I[0]! ^ Math.imul(DUR_I[1]!, -1640531535), -2048144789) >>> DUR_SHIFT;
+    let cslot = -1;
     if (this.useCache) {
       if (t.lastH === h) E = t.lastE;
       else {
-        E = t.cache.get(h);
-        if (E !== undefined) {
+        const keys = t.cachedKeys;
+        let i = home;
+        for (;;) {
+          const k = keys[i]!;
+          if (k === h) {
+            E = t.cachedE[i];
+            break;
+          }
+          if (k !== k) {
+            cslot = i;
+            break;
+          }
+          i = (i + 1) & (DURATION_SLOTS - 1);
+        }
+        // entries that others put in the Map (or that did not fit the table) are looked up there
+        if (!E && t.cache.size !== t.cachedCount) E = t.cache.get(h);
+        if (E) {
           t.lastH = h;
           t.lastE = E;
         }
@@ -883,10 +907,25 @@ export class Simulation {
       // are cheaper by the Taylor series (or the split below) than by a fresh exponential.
       let repeat = false;
       if (this.useCache) {
-        repeat = t.seenOnce.has(h);
+        const keys = t.seenKeys;
+        let i = home;
+        for (;;) {
+          const k = keys[i]!;
+          if (k === h) {
+            repeat = true;
+            break;
+          }
+          if (k !== k) break;
+          i = (i + 1) & (DURATION_SLOTS - 1);
+        }
         if (!repeat) {
-          if (t.seenOnce.size >= 4 * this.maxCached) t.seenOnce.clear();
-          t.seenOnce.add(h);
+          if (t.seenCount >= Math.min(4 * this.maxCached, DURATION_SLOTS / 2)) {
+            keys.fill(Number.NaN);
+            t.seenCount = 0;
+            i = home;
+          }
+          keys[i] = h;
+          t.seenCount++;
         }
       }
       const room = this.useCache && repeat && t.cache.size < this.maxCached;
@@ -900,6 +939,12 @@ export class Simulation {
         this.counters.exponentials++;
         if (this.useCache) {
           t.cache.set(h, E);
+          // cslot is the empty slot where the probe for h ended (h was not in the table)
+          if (cslot >= 0 && t.cachedCount < DURATION_SLOTS / 2 && t.cache.size === t.cachedCount + 1) {
+            t.cachedKeys[cslot] = h;
+            t.cachedE[cslot] = E;
+            t.cachedCount++;
+          }
           t.lastH = h;
           t.lastE = E;
         }

@@ -20,6 +20,9 @@ interface BranchState {
   leaky: boolean; // open device given PROBE_OHMS
 }
 
+/** Slots of the duration tables of a topology (a power of two; kept at most half full). */
+export const DURATION_SLOTS = 2048;
+
 /** Describes the conduction state of every device of a topology key. */
 export function describeKey(c: CompiledCircuit, key: number): string {
   return c.devices.map((d, i) => `${d.id}=${(key >>> i) & 1 ? 'on' : 'off'}`).join(' ');
@@ -53,8 +56,18 @@ export class Topology {
   readonly cache = new Map<number, Float64Array>();
   /** the diode guards of this topology (built by the simulator, shared by runs) */
   deviceGuards: unknown = undefined;
-  /** durations seen once (a second sighting caches their propagator) */
-  readonly seenOnce = new Set<number>();
+  /**
+   * Durations seen once (a second sighting caches their propagator), and the durations of
+   * `cache` that the simulator put there with their propagators: open-addressed tables over the
+   * bits of the duration (NaN marks an empty slot, see DURATION_SLOTS), so that the lookup of a
+   * fresh duration at every event-terminated segment neither allocates nor boxes the double, as
+   * a Set or Map keyed by numbers does.
+   */
+  readonly seenKeys = new Float64Array(DURATION_SLOTS).fill(Number.NaN);
+  seenCount = 0;
+  readonly cachedKeys = new Float64Array(DURATION_SLOTS).fill(Number.NaN);
+  readonly cachedE: (Float64Array | null)[] = new Array<Float64Array | null>(DURATION_SLOTS).fill(null);
+  cachedCount = 0;
   lastH = Number.NaN;
   lastE: Float64Array | null = null;
   /** cached E(k * baseStep) by k */
