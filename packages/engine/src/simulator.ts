@@ -981,7 +981,13 @@ export class Simulation {
    */
   private taylor(t: Topology, h: number, w0: Float64Array, out: Float64Array, keep: number): number {
     const n = this.n, nx = this.nx, m = t.m;
-    const K = taylorOrder(t.normA * h);
+    // the order of the last duration is kept on the topology: located segments repeat their
+    // length every cycle, and the order's loop is a chain of divisions
+    let K = t.taylorK;
+    if (t.taylorH !== h) {
+      K = t.taylorK = taylorOrder(t.normA * h);
+      t.taylorH = h;
+    }
     const V = this.taylorV;
     for (let j = 0; j < n; j++) {
       V[j] = w0[j]!;
@@ -1260,7 +1266,9 @@ export class Simulation {
         }
       }
       if (interrupted >= 0) {
-        const p = this.model.probe(this.key);
+        // kept on the topology: a current interrupted by a switch recurs every cycle
+        let p = t.probeTopology;
+        if (p === undefined) p = t.probeTopology = this.model.probe(this.key);
         let best = -1, bestV = this.vTol;
         for (let d = 0; d < c.devices.length; d++) {
           const dev = c.devices[d]!;

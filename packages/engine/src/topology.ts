@@ -56,6 +56,8 @@ export class Topology {
   readonly cache = new Map<number, Float64Array>();
   /** the diode guards of this topology (built by the simulator, shared by runs) */
   deviceGuards: unknown = undefined;
+  /** the same key with open devices given PROBE_OHMS (set by the simulator when first needed) */
+  probeTopology: Topology | undefined = undefined;
   /**
    * Durations seen once (a second sighting caches their propagator), and the durations of
    * `cache` that the simulator put there with their propagators: open-addressed tables over the
@@ -69,6 +71,9 @@ export class Topology {
   readonly cachedE: (Float64Array | null)[] = new Array<Float64Array | null>(DURATION_SLOTS).fill(null);
   cachedCount = 0;
   lastH = Number.NaN;
+  /** the duration of the last Taylor series taken in this topology and its order (simulator) */
+  taylorH = Number.NaN;
+  taylorK = 0;
   lastE: Float64Array | null = null;
   /** cached E(k * baseStep) by k */
   readonly multiples = new Map<number, Float64Array>();
