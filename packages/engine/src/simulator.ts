@@ -327,8 +327,8 @@ export class Simulation {
   private readonly locWb: Float64Array;
   private readonly locFound: Float64Array;
   private readonly locBest: Float64Array;
-  /** arguments of maybeRising */
-  private readonly screen = new Float64Array(6);
+  /** arguments of maybeRising (0-5) and of locate (6, 7), and the time locate found (8) */
+  private readonly screen = new Float64Array(9);
   // settings
   private readonly iTol: number;
   private readonly vTol: number;
@@ -1097,14 +1097,17 @@ export class Simulation {
 
   /**
    * Finds the first upward zero crossing of sign * (row . w(tau)) in (0, h] on the exact
-   * solution from w0 in topology t. Returns tau (and the state there in locFound) or -1.
+   * solution from w0 in topology t, with sign and h in screen[6] and screen[7]. Returns whether
+   * it found one, with tau in screen[8] and the state there in locFound.
    * Works in pieces with normA * piece <= 1 on which the guard is the Taylor polynomial of the
    * exact solution (truncated below 1e-17), so a trial time costs a polynomial evaluation, not
    * a fresh exponential. Each piece is sampled to find the first sign change; the root is then
    * polished by safeguarded Newton on the polynomial.
    */
-  private locate(t: Topology, g: ActiveGuard, sign: number, w0: Float64Array, h: number, startAbove: boolean): number {
+  private locate(t: Topology, g: ActiveGuard, w0: Float64Array, startAbove: boolean): boolean {
     const n = this.n, nx = this.nx;
+    const sc = this.screen;
+    const sign = sc[6]!, h = sc[7]!;
     const pieceMax = t.normA > 0 ? 1 / t.normA : h;
     const wa = this.locWa, wb = this.locWb, pc = this.polyC, V = this.taylorV, row = g.row;
     for (let j = 0; j < n; j++) wa[j] = w0[j]!;
@@ -1201,7 +1204,8 @@ export class Simulation {
           }
           // the same Horner sum for an input: zero terms, then 0 * x + w0[j] (x > 0)
           for (let j = nx; j < n; j++) out[j] = 0 + V[j]!;
-          return a + x * len;
+          sc[8] = a + x * len;
+          return true;
         }
         sPrev = sx;
         fPrev = f;
@@ -1209,7 +1213,7 @@ export class Simulation {
       a += len;
       for (let j = 0; j < n; j++) wa[j] = wb[j]!;
     }
-    return -1;
+    return false;
   }
 
   // ----------------------------------------------------------------------------------------
@@ -1592,8 +1596,10 @@ export class Simulation {
           sc[4] = e4;
           sc[5] = h;
           if (!Simulation.maybeRising(sc)) continue;
-          const limit = guardTau >= 0 ? guardTau : h;
-          const tau = this.locate(t, g, sign, w0, limit, startAbove);
+          // sign and limit go in the scratch too, and tau comes back in it (no boxed doubles)
+          sc[6] = sign;
+          sc[7] = guardTau >= 0 ? guardTau : h;
+          const tau = this.locate(t, g, w0, startAbove) ? sc[8]! : -1;
           if (tau >= 0 && (guardTau < 0 || tau < guardTau)) {
             guardTau = tau;
             guardIdx = gi;
@@ -1610,7 +1616,7 @@ export class Simulation {
         tr?.segment?.(t.key, tau, w0);
         if (this.intRefs.length !== 0) this.accumulate(t, tau, w0);
         const startT = this.timeS;
-        this.emitGridUpTo(startT, tau, t, w0);
+        if (this.gridS > 0) this.emitGridUpTo(startT, tau, t, w0);
         this.off += tau;
         if (this.off >= this.tb) {
           const k = Math.floor(this.off / this.tb);
@@ -1631,7 +1637,7 @@ export class Simulation {
       }
       tr?.segment?.(t.key, h, w0);
       if (this.intRefs.length !== 0) this.accumulate(t, h, w0);
-      this.emitGridUpTo(this.timeS, h, t, w0);
+      if (this.gridS > 0) this.emitGridUpTo(this.timeS, h, t, w0);
       this.checkFinite(w1, t);
       for (let j = 0; j < this.nx; j++) w0[j] = w1[j]!;
       this.cyc = c1;
