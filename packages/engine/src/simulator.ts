@@ -327,6 +327,9 @@ export class Simulation {
   private readonly locWb: Float64Array;
   private readonly locFound: Float64Array;
   private readonly locBest: Float64Array;
+  /** the duration argument of propagate and taylor (a double argument to a call that is not
+   * inlined would be boxed on the heap) */
+  private readonly hArg = new Float64Array(1);
   /** arguments of maybeRising (0-5) and of locate (6, 7), and the time locate found (8) */
   private readonly screen = new Float64Array(9);
   // settings
@@ -864,9 +867,10 @@ export class Simulation {
   // ----------------------------------------------------------------------------------------
   // propagation
 
-  /** Propagates w0 over h in topology t into out (exact). */
-  private propagate(t: Topology, h: number, w0: Float64Array, out: Float64Array): void {
+  /** Propagates w0 over h = hArg[0] in topology t into out (exact). */
+  private propagate(t: Topology, w0: Float64Array, out: Float64Array): void {
     const n = this.n, nx = this.nx;
+    const h = this.hArg[0]!;
     let E: Float64Array | null | undefined = null;
     // home slot of h in the duration tables of the topology (a hash of its bits)
     DUR_F[0] = h;
@@ -930,7 +934,7 @@ export class Simulation {
       }
       const room = this.useCache && repeat && t.cache.size < this.maxCached;
       if (!room && rho <= 1) {
-        this.taylor(t, h, w0, out, 0);
+        this.taylor(t, w0, out);
         this.counters.taylorSegments++;
         return;
       }
@@ -960,7 +964,8 @@ export class Simulation {
           if (t.multiples.size > 1024) t.multiples.clear();
           t.multiples.set(k, Ek);
         }
-        this.taylor(t, r, w0, this.wtmp, 0);
+        this.hArg[0] = r;
+        this.taylor(t, w0, this.wtmp);
         this.matvec(Ek, this.wtmp, out);
         return;
       }
@@ -976,11 +981,13 @@ export class Simulation {
   }
 
   /**
-   * Taylor series of the exact solution: fills taylorV with v_k = (h^k / k!) M^k w0 for
-   * k = 0..K (when keep) and writes w(h) into out. Used only for normA * h <= 1.
+   * Taylor series of the exact solution over h = hArg[0]: fills taylorV with
+   * v_k = (h^k / k!) M^k w0 for k = 0..K, writes w(h) into out and returns K. Used only for
+   * normA * h <= 1.
    */
-  private taylor(t: Topology, h: number, w0: Float64Array, out: Float64Array, keep: number): number {
+  private taylor(t: Topology, w0: Float64Array, out: Float64Array): number {
     const n = this.n, nx = this.nx, m = t.m;
+    const h = this.hArg[0]!;
     // the order of the last duration is kept on the topology: located segments repeat their
     // length every cycle, and the order's loop is a chain of divisions
     let K = t.taylorK;
@@ -1009,7 +1016,6 @@ export class Simulation {
       }
       // V[cur + j] for j >= nx stays 0 from the allocation: inputs are constant
     }
-    void keep;
     return K;
   }
 
@@ -1020,7 +1026,8 @@ export class Simulation {
       return;
     }
     if (t.normA * tau <= 1) {
-      this.taylor(t, tau, w0, out, 0);
+      this.hArg[0] = tau;
+      this.taylor(t, w0, out);
       return;
     }
     const hb = t.baseStep;
@@ -1034,7 +1041,8 @@ export class Simulation {
       t.multiples.set(k, Ek);
     }
     const tmp = new Float64Array(this.n);
-    this.taylor(t, r, w0, tmp, 0);
+    this.hArg[0] = r;
+    this.taylor(t, w0, tmp);
     this.matvec(Ek, tmp, out);
   }
 
@@ -1115,7 +1123,8 @@ export class Simulation {
     let above = startAbove;
     for (let pieces = 0; a < h && pieces < 10_000_000; pieces++) {
       const len = Math.min(pieceMax, h - a);
-      const K = this.taylor(t, len, wa, wb, 1);
+      this.hArg[0] = len;
+      const K = this.taylor(t, wa, wb);
       {
         let s = 0;
         for (let j = 0; j < n; j++) s += row[j]! * V[j]!;
@@ -1559,7 +1568,10 @@ export class Simulation {
         const nx = this.nx, n = this.n;
         topRows(t.lastE!, nx, n, w0, w1);
         for (let j = nx; j < n; j++) w1[j] = w0[j]!;
-      } else this.propagate(t, h, w0, w1);
+      } else {
+        this.hArg[0] = h;
+        this.propagate(t, w0, w1);
+      }
       this.counters.segments++;
       // guard screening
       const act = this.active;
