@@ -1000,7 +1000,10 @@ export class Simulation {
       V[j] = w0[j]!;
       out[j] = w0[j]!;
     }
-    for (let k = 1; k <= K; k++) {
+    // two states (the common small stage): the terms beyond the first written out with the
+    // matrix in locals, the same sums in the same order as the loop below
+    const K2 = nx === 2 ? 1 : K;
+    for (let k = 1; k <= K2; k++) {
       const prev = (k - 1) * n;
       const cur = k * n;
       const f = h / k;
@@ -1015,6 +1018,24 @@ export class Simulation {
         out[i]! += s;
       }
       // V[cur + j] for j >= nx stays 0 from the allocation: inputs are constant
+    }
+    if (K2 < K) {
+      const a00 = m[0]!, a01 = m[1]!, a10 = m[n]!, a11 = m[n + 1]!;
+      let v0 = V[n]!, v1 = V[n + 1]!;
+      let o0 = out[0]!, o1 = out[1]!;
+      for (let k = 2, cur = 2 * n; k <= K; k++, cur += n) {
+        const f = h / k;
+        const s0 = (0 + a00 * v0 + a01 * v1) * f;
+        const s1 = (0 + a10 * v0 + a11 * v1) * f;
+        V[cur] = s0;
+        V[cur + 1] = s1;
+        o0 += s0;
+        o1 += s1;
+        v0 = s0;
+        v1 = s1;
+      }
+      out[0] = o0;
+      out[1] = o1;
     }
     return K;
   }
@@ -1132,11 +1153,16 @@ export class Simulation {
       }
       // beyond the first term only the states are non-zero: adding the zero products of the
       // input columns would not change a sum that starts at +0 (it is never -0)
-      for (let k = 1; k <= K; k++) {
-        let s = 0;
-        const o = k * n;
-        for (let j = 0; j < nx; j++) s += row[j]! * V[o + j]!;
-        pc[k] = sign * s;
+      if (nx === 2) {
+        const r0 = row[0]!, r1 = row[1]!;
+        for (let k = 1, o = n; k <= K; k++, o += n) pc[k] = sign * (0 + r0 * V[o]! + r1 * V[o + 1]!);
+      } else {
+        for (let k = 1; k <= K; k++) {
+          let s = 0;
+          const o = k * n;
+          for (let j = 0; j < nx; j++) s += row[j]! * V[o + j]!;
+          pc[k] = sign * s;
+        }
       }
       // A polynomial whose derivative keeps one sign on [0, 1] (the slope term outweighs every
       // other term's largest possible slope, k |c_k|) crosses zero at most once there: its
