@@ -1606,7 +1606,20 @@ export class Simulation {
         // the six dot products in one pass (each sum in the order of its own loop)
         const row = g.row, drow = g.drow, d4row = g.d4row;
         let f0 = 0, f1 = 0, d0 = 0, d1 = 0, q0 = 0, q1 = 0;
-        for (let j = 0; j < row.length; j++) {
+        if (row.length === 4) {
+          // the smallest stage written out (same sums, same order)
+          const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
+          const b0 = w1[0]!, b1 = w1[1]!, b2 = w1[2]!, b3 = w1[3]!;
+          const r0 = row[0]!, r1 = row[1]!, r2 = row[2]!, r3 = row[3]!;
+          const p0 = drow[0]!, p1 = drow[1]!, p2 = drow[2]!, p3 = drow[3]!;
+          const s0 = d4row[0]!, s1 = d4row[1]!, s2 = d4row[2]!, s3 = d4row[3]!;
+          f0 = 0 + r0 * a0 + r1 * a1 + r2 * a2 + r3 * a3;
+          f1 = 0 + r0 * b0 + r1 * b1 + r2 * b2 + r3 * b3;
+          d0 = 0 + p0 * a0 + p1 * a1 + p2 * a2 + p3 * a3;
+          d1 = 0 + p0 * b0 + p1 * b1 + p2 * b2 + p3 * b3;
+          q0 = 0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3;
+          q1 = 0 + s0 * b0 + s1 * b1 + s2 * b2 + s3 * b3;
+        } else for (let j = 0; j < row.length; j++) {
           const a = w0[j]!, b = w1[j]!;
           f0 += row[j]! * a;
           f1 += row[j]! * b;
