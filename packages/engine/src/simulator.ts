@@ -352,6 +352,9 @@ export class Simulation {
   private readonly gateMask: Int32Array;
   private readonly channelMask: number;
   private readonly diodeCount: number;
+  /** device index and forward voltage of each diode, in device order (consistent switching visits only these) */
+  private readonly diodeIdx: Int32Array;
+  private readonly diodeVf: Float64Array;
   /** topologies by key for circuits with at most 16 devices (a direct index beats a Map lookup) */
   private readonly topoTable: (Topology | undefined)[] | null;
   /** active guard list by topology key and the arm key it was built for (same size limit) */
@@ -443,6 +446,14 @@ export class Simulation {
     });
     this.channelMask = cm;
     this.diodeCount = c.devices.filter((d) => d.kind === 'diode').length;
+    this.diodeIdx = new Int32Array(this.diodeCount);
+    this.diodeVf = new Float64Array(this.diodeCount);
+    for (let d = 0, q = 0; d < c.devices.length; d++) {
+      const dev = c.devices[d]!;
+      if (dev.kind !== 'diode') continue;
+      this.diodeIdx[q] = d;
+      this.diodeVf[q++] = c.branches[dev.branch]!.forwardVolts;
+    }
     this.topoTable = c.devices.length <= 16 ? new Array<Topology | undefined>(1 << c.devices.length).fill(undefined) : null;
     this.activeDense = c.devices.length <= 16 ? new Array<ActiveGuard[] | undefined>(1 << c.devices.length).fill(undefined) : null;
     this.activeDenseArm = new Float64Array(this.activeDense === null ? 0 : 1 << c.devices.length).fill(-1);
@@ -1309,10 +1320,10 @@ export class Simulation {
         let p = t.probeTopology;
         if (p === undefined) p = t.probeTopology = this.model.probe(this.key);
         let best = -1, bestV = this.vTol;
-        for (let d = 0; d < c.devices.length; d++) {
-          const dev = c.devices[d]!;
-          if (dev.kind !== 'diode' || (this.key >>> d) & 1) continue;
-          const v = Simulation.dot(p.deviceVoltage[d]!, w) - c.branches[dev.branch]!.forwardVolts;
+        for (let q = 0; q < this.diodeCount; q++) {
+          const d = this.diodeIdx[q]!;
+          if ((this.key >>> d) & 1) continue;
+          const v = Simulation.dot(p.deviceVoltage[d]!, w) - this.diodeVf[q]!;
           if (v > bestV) {
             bestV = v;
             best = d;
@@ -1333,9 +1344,8 @@ export class Simulation {
       }
       for (let i = 0; i < held.length; i++) w[held[i]!] = 0;
       let worst = -1, worstV = 0, turnOn = false;
-      for (let d = 0; d < c.devices.length; d++) {
-        const dev = c.devices[d]!;
-        if (dev.kind !== 'diode') continue;
+      for (let q = 0; q < this.diodeCount; q++) {
+        const d = this.diodeIdx[q]!;
         if ((this.key >>> d) & 1) {
           const i = Simulation.dot(t.deviceCurrent[d]!, w);
           if (i < -this.iTol && !turnOn && -i > worstV) {
@@ -1343,7 +1353,7 @@ export class Simulation {
             worstV = -i;
           }
         } else {
-          const v = Simulation.dot(t.deviceVoltage[d]!, w) - c.branches[dev.branch]!.forwardVolts;
+          const v = Simulation.dot(t.deviceVoltage[d]!, w) - this.diodeVf[q]!;
           if (v > this.vTol && (!turnOn || v > worstV)) {
             worst = d;
             worstV = v;
