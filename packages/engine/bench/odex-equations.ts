@@ -1,7 +1,7 @@
 // The benchmark scenarios' piecewise-linear equations written out by hand for odex
 // (Hairer and Wanner's GBS extrapolation code), with its own event location on the dense
 // output for the diode's zero-current event. Independent of the engine's network solve.
-import { Solver, type OdexSolver } from '../test/odex-solver.ts';
+import { Solver, solveToFallingZero } from '../test/odex-solver.ts';
 
 const VIN = 12, L = 4.7e-6, RL = 0.02, C = 22e-6, ESR = 0.005, RON = 0.01;
 const LF = 1e-6, RLF = 0.01, CF = 10e-6, ESRF = 0.003, VF = 0.4, RD = 0.02;
@@ -72,29 +72,14 @@ export function odexRun(which: 'S1' | 'S2' | 'S3', cycles: number, periodS: numb
       y = r.y;
       continue;
     }
-    let event = -1;
-    let yEvent: number[] | null = null;
-    r = sd.solve(deriv('off'), ton, y, t1, (_n, xOld, x, yy, dense) => {
-      if (yy[0]! <= 0 && dense) {
-        let lo = xOld, hi = x;
-        for (let it = 0; it < 200 && hi - lo > 1e-22; it++) {
-          const mid = 0.5 * (lo + hi);
-          if (dense(0, mid) > 0) lo = mid;
-          else hi = mid;
-        }
-        event = 0.5 * (lo + hi);
-        yEvent = [0, dense(1, event)];
-        return false;
-      }
-      return true;
-    });
-    evals += r.nEval;
-    if (yEvent !== null) {
-      r = s.solve(deriv('dcm'), event, yEvent, t1);
+    const z = solveToFallingZero(sd, deriv('off'), ton, y, t1);
+    evals += z.nEval;
+    if (z.event !== null) {
+      r = s.solve(deriv('dcm'), z.event, z.y, t1);
       evals += r.nEval;
       y = r.y;
       y[0] = 0;
-    } else y = r.y;
+    } else y = z.y;
   }
   return { y, evals };
 }

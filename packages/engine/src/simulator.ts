@@ -175,12 +175,6 @@ const KIND_TIMER = 1;
 const KIND_STOP = 2;
 
 const TAYLOR_MAX = 40;
-const FACT_INV: Float64Array = (() => {
-  const f = new Float64Array(TAYLOR_MAX + 2);
-  f[0] = 1;
-  for (let k = 1; k < f.length; k++) f[k] = f[k - 1]! / k;
-  return f;
-})();
 
 /** Scratch for hashing a duration's bits (one per module: never in use twice at once). */
 const DUR_F = new Float64Array(1);
@@ -323,6 +317,8 @@ export class Simulation {
   private readonly wtmp: Float64Array;
   private readonly taylorV: Float64Array;
   private readonly polyC = new Float64Array(TAYLOR_MAX + 1);
+  /** scratch of splitAt (its callers may pass wtmp as the output) */
+  private readonly splitTmp: Float64Array;
   private readonly locWa: Float64Array;
   private readonly locWb: Float64Array;
   private readonly locFound: Float64Array;
@@ -350,7 +346,6 @@ export class Simulation {
   private pLen = 0;
   // gates
   private readonly gateMask: Int32Array;
-  private readonly channelMask: number;
   private readonly diodeCount: number;
   /** device index and forward voltage of each diode, in device order (consistent switching visits only these) */
   private readonly diodeIdx: Int32Array;
@@ -363,7 +358,6 @@ export class Simulation {
   private turnedOff = 0;
   // guards
   private readonly guardRefs: LinearRef[] = [];
-  private readonly guardThreshold: number[] = [];
   private readonly guardDir: number[] = [];
   private guardArmed: Int32Array = new Int32Array(0);
   private guardTag: Float64Array = new Float64Array(0);
@@ -426,6 +420,7 @@ export class Simulation {
     this.w1 = new Float64Array(n);
     this.wtmp = new Float64Array(n);
     this.taylorV = new Float64Array((TAYLOR_MAX + 1) * n);
+    this.splitTmp = new Float64Array(n);
     this.locWa = new Float64Array(n);
     this.locWb = new Float64Array(n);
     this.locFound = new Float64Array(n);
@@ -433,18 +428,15 @@ export class Simulation {
     if (options.initialState !== undefined) this.applyInitial(options.initialState);
 
     this.gateMask = new Int32Array(c.gates.length);
-    let cm = 0;
     c.devices.forEach((d, i) => {
       if (d.kind === 'channel') {
         this.gateMask[d.gate]! |= 1 << i;
-        cm |= 1 << i;
         const spec = c.spec.elements.find((e) => e.id === d.element);
         if (spec?.kind === 'switch' && spec.initiallyOn) {
           this.key |= 1 << i;
         }
       }
     });
-    this.channelMask = cm;
     this.diodeCount = c.devices.filter((d) => d.kind === 'diode').length;
     this.diodeIdx = new Int32Array(this.diodeCount);
     this.diodeVf = new Float64Array(this.diodeCount);
@@ -738,7 +730,6 @@ export class Simulation {
       if (!Number.isFinite(thr)) throw new RangeError(`guard threshold must be finite, got ${String(thr)}`);
       if (thr !== 0) w.set(this.sim.nx, (w.get(this.sim.nx) ?? 0) - thr);
       this.sim.guardRefs.push({ mna, w });
-      this.sim.guardThreshold.push(thr);
       this.sim.guardDir.push(spec.direction === 'rising' ? 1 : spec.direction === 'falling' ? -1 : 0);
       const armed = new Int32Array(this.sim.guardRefs.length);
       armed.set(this.sim.guardArmed);
@@ -964,20 +955,7 @@ export class Simulation {
           t.lastE = E;
         }
       } else {
-        // split: h = k * baseStep + r, E(k baseStep) cached by k, Taylor over r
-        const hb = t.baseStep;
-        const k = Math.floor(h / hb);
-        const r = h - k * hb;
-        let Ek = t.multiples.get(k);
-        if (Ek === undefined) {
-          Ek = t.computeE(k * hb);
-          this.counters.exponentials++;
-          if (t.multiples.size > 1024) t.multiples.clear();
-          t.multiples.set(k, Ek);
-        }
-        this.hArg[0] = r;
-        this.taylor(t, w0, this.wtmp);
-        this.matvec(Ek, this.wtmp, out);
+        this.splitAt(t, h, w0, out);
         return;
       }
     }
@@ -1062,9 +1040,16 @@ export class Simulation {
       this.taylor(t, w0, out);
       return;
     }
+    this.splitAt(t, tau, w0, out);
+  }
+
+  /**
+   * Exact state at offset tau when normA * tau > 1: tau = k * baseStep + r, with E(k baseStep)
+   * cached by k and the Taylor series over r (normA * r <= 1).
+   */
+  private splitAt(t: Topology, tau: number, w0: Float64Array, out: Float64Array): void {
     const hb = t.baseStep;
     const k = Math.floor(tau / hb);
-    const r = tau - k * hb;
     let Ek = t.multiples.get(k);
     if (Ek === undefined) {
       Ek = t.computeE(k * hb);
@@ -1072,10 +1057,9 @@ export class Simulation {
       if (t.multiples.size > 1024) t.multiples.clear();
       t.multiples.set(k, Ek);
     }
-    const tmp = new Float64Array(this.n);
-    this.hArg[0] = r;
-    this.taylor(t, w0, tmp);
-    this.matvec(Ek, tmp, out);
+    this.hArg[0] = tau - k * hb;
+    this.taylor(t, w0, this.splitTmp);
+    this.matvec(Ek, this.splitTmp, out);
   }
 
   // ----------------------------------------------------------------------------------------

@@ -2,7 +2,7 @@
 // integrated by odex (Hairer and Wanner's GBS extrapolation code, E. Hairer, S. P. Norsett and
 // G. Wanner, Solving Ordinary Differential Equations I, 1993), with its own event location
 // on the dense output.
-import { Solver, type OdexSolver } from './odex-solver.ts';
+import { Solver, solveToFallingZero, type OdexSolver } from './odex-solver.ts';
 
 export interface BuckNumbers {
   vin: number;
@@ -56,7 +56,6 @@ export function runOdexBuck(p: BuckNumbers, cycles: number, tol = 1e-13): OdexRu
   const sd = solver(tol);
   sd.denseOutput = true;
   for (let k = 0; k < cycles; k++) {
-    const t0 = k * T;
     const ton = p.duty * T;
     y = s.solve(deriv(p, 'on'), 0, y, ton).y;
     if (!p.diode) {
@@ -64,32 +63,16 @@ export function runOdexBuck(p: BuckNumbers, cycles: number, tol = 1e-13): OdexRu
       offsets.push(Number.NaN);
       continue;
     }
-    // diode on until its current (= iL) reaches zero: locate on the dense output by bisection
-    let event = Number.NaN;
-    let yEvent: number[] | null = null;
-    const r = sd.solve(deriv(p, 'off'), ton, y, T, (_n, xOld, x, yy, dense) => {
-      if (yy[0]! <= 0 && dense) {
-        let lo = xOld, hi = x;
-        for (let it = 0; it < 200 && hi - lo > 1e-22; it++) {
-          const mid = 0.5 * (lo + hi);
-          if (dense(0, mid) > 0) lo = mid;
-          else hi = mid;
-        }
-        event = 0.5 * (lo + hi);
-        yEvent = [0, dense(1, event)];
-        return false;
-      }
-      return true;
-    });
-    if (yEvent !== null) {
-      offsets.push(event);
-      y = s.solve(deriv(p, 'dcm'), event, yEvent, T).y;
+    // diode on until its current (= iL) reaches zero: located on odex's dense output
+    const r = solveToFallingZero(sd, deriv(p, 'off'), ton, y, T);
+    if (r.event !== null) {
+      offsets.push(r.event);
+      y = s.solve(deriv(p, 'dcm'), r.event, r.y, T).y;
       y[0] = 0;
     } else {
       offsets.push(Number.NaN);
       y = r.y;
     }
-    void t0;
   }
   return { x: [y[0]!, y[1]!], zeroCrossOffsets: offsets };
 }

@@ -4,7 +4,6 @@ import { buildStage, isHurwitz, ParameterError, voltageMode, type CompensatorPar
 import { runStage } from './support/run.ts';
 
 const FS = 100e3;
-const T = 1 / FS;
 const VG = 12;
 
 function near(a: number, b: number, rtol: number, atol = 0): void {

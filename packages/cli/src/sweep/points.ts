@@ -65,7 +65,6 @@ export function pointAssignments(sweep: SweepSpec, base: unknown, index: number)
   const axes = axisValues(sweep);
   const samples = sweep.monteCarlo?.samples ?? 1;
   let g = Math.floor(index / samples);
-  const sample = index % samples;
   const values: (number | string)[] = new Array<number | string>(axes.length);
   for (let a = axes.length - 1; a >= 0; a--) {
     const n = axes[a]!.length;
