@@ -5,7 +5,7 @@
  * @module
  */
 import type { CircuitModel, IntegralSpec } from '@edgewise/engine';
-import { conductionTerms as modelTerms, LossAccountant, ParameterError, type ConductionPart, type SwitchingEnergy, type SwitchingLossModels } from '@edgewise/models';
+import { conductionTerms as modelTerms, LossAccountant, ParameterError, switchingPowers, type ConductionPart, type SwitchingEnergy, type SwitchingLoss, type SwitchingLossModels } from '@edgewise/models';
 import { InputError } from '../errors.ts';
 import type { SwitchingLossSpec } from '../scenario/schema.ts';
 
@@ -66,33 +66,10 @@ export function makeAccountant(model: CircuitModel, spec: SwitchingLossSpec, win
 }
 
 /** Switching losses of a window in the summary: watts per device with transition counts. */
-export interface SwitchingLossJson {
-  device: string;
-  turnOnW: number;
-  turnOffW: number;
-  outputCapacitanceW: number;
-  reverseRecoveryW: number;
-  gateDriveW: number;
-  totalW: number;
-  turnOns: number;
-  turnOffs: number;
-  recoveries: number;
-}
+/** Switching losses of one device over a window, watts (the models' type). */
+export type SwitchingLossJson = SwitchingLoss;
 
 /** Energies over a window of `spanS` seconds as average powers (devices without any loss left out). */
 export function switchingWatts(energies: readonly SwitchingEnergy[], spanS: number): SwitchingLossJson[] {
-  return energies
-    .filter((e) => e.totalJ > 0)
-    .map((e) => ({
-      device: e.device,
-      turnOnW: e.turnOnJ / spanS,
-      turnOffW: e.turnOffJ / spanS,
-      outputCapacitanceW: e.outputCapacitanceJ / spanS,
-      reverseRecoveryW: e.reverseRecoveryJ / spanS,
-      gateDriveW: e.gateDriveJ / spanS,
-      totalW: e.totalJ / spanS,
-      turnOns: e.turnOns,
-      turnOffs: e.turnOffs,
-      recoveries: e.recoveries,
-    }));
+  return switchingPowers(energies.filter((e) => e.totalJ > 0), spanS);
 }

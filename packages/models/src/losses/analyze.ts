@@ -49,6 +49,22 @@ export interface SwitchingLoss {
   readonly recoveries: number;
 }
 
+/** Switching energies accounted over a window of `spanS` seconds, as average powers. */
+export function switchingPowers(energies: readonly SwitchingEnergy[], spanS: number): SwitchingLoss[] {
+  return energies.map((e) => ({
+    device: e.device,
+    turnOnW: e.turnOnJ / spanS,
+    turnOffW: e.turnOffJ / spanS,
+    outputCapacitanceW: e.outputCapacitanceJ / spanS,
+    reverseRecoveryW: e.reverseRecoveryJ / spanS,
+    gateDriveW: e.gateDriveJ / spanS,
+    totalW: e.totalJ / spanS,
+    turnOns: e.turnOns,
+    turnOffs: e.turnOffs,
+    recoveries: e.recoveries,
+  }));
+}
+
 /** Loss breakdown averaged over a window. */
 export interface LossReport {
   readonly fromS: number;
@@ -179,18 +195,7 @@ export function analyzeLosses(closed: ClosedStage, options: LossAnalysisOptions)
     }
   }
   const conduction = entries.map((en) => ({ element: en.element, part: en.part, watts: en.scale * mean(en.integral) }));
-  const switching = accountant.energies().map((s: SwitchingEnergy) => ({
-    device: s.device,
-    turnOnW: s.turnOnJ / T,
-    turnOffW: s.turnOffJ / T,
-    outputCapacitanceW: s.outputCapacitanceJ / T,
-    reverseRecoveryW: s.reverseRecoveryJ / T,
-    gateDriveW: s.gateDriveJ / T,
-    totalW: s.totalJ / T,
-    turnOns: s.turnOns,
-    turnOffs: s.turnOffs,
-    recoveries: s.recoveries,
-  }));
+  const switching = switchingPowers(accountant.energies(), T);
   const pin = mean('pin');
   const pout = mean('pout');
   const conductionW = conduction.reduce((a, x) => a + x.watts, 0);
