@@ -326,8 +326,9 @@ export class Simulation {
   /** the duration argument of propagate and taylor (a double argument to a call that is not
    * inlined would be boxed on the heap) */
   private readonly hArg = new Float64Array(1);
-  /** arguments of maybeRising (0-5) and of locate (6, 7), and the time locate found (8) */
-  private readonly screen = new Float64Array(9);
+  /** arguments of maybeRising (0-5) and of locate (6, 7), the time locate found (8), and the
+   * time of the earliest guard crossing in the segment (9) */
+  private readonly screen = new Float64Array(10);
   // settings
   private readonly iTol: number;
   private readonly vTol: number;
@@ -372,6 +373,8 @@ export class Simulation {
   private readonly recRows = new Map<number, Float64Array[]>();
   private readonly recValues: Float64Array;
   private readonly recordEvents: boolean;
+  /** a trace, integrals or a grid watch the segments */
+  private readonly observed: boolean;
   private readonly gridS: number;
   private readonly recordFrom: number;
   private gridIndex = 0;
@@ -463,6 +466,7 @@ export class Simulation {
     }));
     this.intValues = new Float64Array(this.intRefs.length);
     this.stepTimes = c.sourceSteps.slice();
+    this.observed = options.trace !== undefined || this.intRefs.length !== 0 || this.gridS > 0;
     this.ctrl = options.controller;
     this.ctx = this.makeContext();
 
@@ -1563,14 +1567,21 @@ export class Simulation {
   step(): 'running' | 'finished' | 'stopped' | 'failed' {
     if (this.status !== 'running') return this.status;
     try {
-      this.stepInner();
+      this.advance();
     } catch (err) {
       this.fail(err);
     }
     return this.status;
   }
 
-  private stepInner(): void {
+  /**
+   * One step: propagates to the next event instant (the earlier of the next scheduled entry
+   * and the first located guard crossing), handles every event there and switches. The whole
+   * per-event path is in this one method and the few it calls, so that the optimiser inlines the
+   * controller's calls into it; what only observers need (sink, trace, integrals, grid) sits
+   * behind one flag.
+   */
+  private advance(): void {
     if (this.pLen !== 0) this.applyQueued();
     if (this.activeDirty) this.rebuildActive();
     const qi = this.qLen - 1;
@@ -1579,131 +1590,184 @@ export class Simulation {
     const t = this.topo;
     const w0 = this.w;
     const w1 = this.w1;
-    let guardTau = -1;
-    let guardIdx = -1;
+    const nx = this.nx, n = this.n;
+    const counters = this.counters;
     if (h > 0) {
-      if (this.useCache && t.lastH === h) {
-        // the common case of propagate(), without the call
-        this.counters.propagatorCacheHits++;
-        const nx = this.nx, n = this.n;
-        topRows(t.lastE!, nx, n, w0, w1);
-        for (let j = nx; j < n; j++) w1[j] = w0[j]!;
+      const E = t.lastH === h && this.useCache ? t.lastE! : null;
+      if (E !== null) {
+        counters.propagatorCacheHits++;
+        if (n === 4 && nx === 2) {
+          // the smallest stage written out (same sums, same order as topRows)
+          const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
+          w1[0] = 0 + E[0]! * a0 + E[1]! * a1 + E[2]! * a2 + E[3]! * a3;
+          w1[1] = 0 + E[4]! * a0 + E[5]! * a1 + E[6]! * a2 + E[7]! * a3;
+          w1[2] = a2;
+          w1[3] = a3;
+        } else {
+          topRows(E, nx, n, w0, w1);
+          for (let j = nx; j < n; j++) w1[j] = w0[j]!;
+        }
       } else {
         this.hArg[0] = h;
         this.propagate(t, w0, w1);
       }
-      this.counters.segments++;
-      // guard screening
-      const act = this.active;
-      for (let gi = 0; gi < act.length; gi++) {
-        const g = act[gi]!;
-        // the six dot products in one pass (each sum in the order of its own loop)
-        const row = g.row, drow = g.drow, d4row = g.d4row;
-        let f0 = 0, f1 = 0, d0 = 0, d1 = 0, q0 = 0, q1 = 0;
-        if (row.length === 4) {
-          // the smallest stage written out (same sums, same order)
-          const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
-          const b0 = w1[0]!, b1 = w1[1]!, b2 = w1[2]!, b3 = w1[3]!;
-          const r0 = row[0]!, r1 = row[1]!, r2 = row[2]!, r3 = row[3]!;
-          const p0 = drow[0]!, p1 = drow[1]!, p2 = drow[2]!, p3 = drow[3]!;
-          const s0 = d4row[0]!, s1 = d4row[1]!, s2 = d4row[2]!, s3 = d4row[3]!;
-          f0 = 0 + r0 * a0 + r1 * a1 + r2 * a2 + r3 * a3;
-          f1 = 0 + r0 * b0 + r1 * b1 + r2 * b2 + r3 * b3;
-          d0 = 0 + p0 * a0 + p1 * a1 + p2 * a2 + p3 * a3;
-          d1 = 0 + p0 * b0 + p1 * b1 + p2 * b2 + p3 * b3;
-          q0 = 0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3;
-          q1 = 0 + s0 * b0 + s1 * b1 + s2 * b2 + s3 * b3;
-        } else for (let j = 0; j < row.length; j++) {
-          const a = w0[j]!, b = w1[j]!;
-          f0 += row[j]! * a;
-          f1 += row[j]! * b;
-          d0 += drow[j]! * a;
-          d1 += drow[j]! * b;
-          q0 += d4row[j]! * a;
-          q1 += d4row[j]! * b;
-        }
-        const e4 = Math.max(Math.abs(q0), Math.abs(q1));
-        for (let pass = 0; pass < 2; pass++) {
-          const sign = g.dir !== 0 ? g.dir : pass === 0 ? 1 : -1;
-          if (g.dir !== 0 && pass === 1) break;
-          const sf0 = sign * f0;
-          const sd0 = sign * d0;
-          // just-fired guards sit at zero: count them as already crossed when moving upward
-          // a guard that has just fired sits at zero within the rounding of its own dot product:
-          // count it as already crossed when it moves upward
-          const startAbove = sf0 > 0 || (sf0 === 0 && sd0 >= 0) || (sd0 > 0 && Math.abs(sf0) <= 8e-16 * Simulation.dotScale(g.row, w0));
-          const f0n = startAbove ? Math.max(sf0, 0) : sf0;
-          const sc = this.screen;
-          sc[0] = f0n;
-          sc[1] = sign * f1;
-          sc[2] = sd0;
-          sc[3] = sign * d1;
-          sc[4] = e4;
-          sc[5] = h;
-          if (!Simulation.maybeRising(sc)) continue;
-          // sign and limit go in the scratch too, and tau comes back in it (no boxed doubles)
-          sc[6] = sign;
-          sc[7] = guardTau >= 0 ? guardTau : h;
-          const tau = this.locate(t, g, w0, startAbove) ? sc[8]! : -1;
-          if (tau >= 0 && (guardTau < 0 || tau < guardTau)) {
-            guardTau = tau;
-            guardIdx = gi;
-            for (let j = 0; j < this.n; j++) this.locBest[j] = this.locFound[j]!;
-          }
-        }
-      }
-      const tr = this.options.trace;
-      if (guardTau >= 0 && guardTau < h * (1 - 1e-14)) {
-        // guard event inside the segment
-        const tau = guardTau;
-        for (let j = 0; j < this.n; j++) w1[j] = this.locBest[j]!;
-        const prevCyc = this.cyc, prevOff = this.off;
-        tr?.segment?.(t.key, tau, w0);
-        if (this.intRefs.length !== 0) this.accumulate(t, tau, w0);
-        const startT = this.timeS;
-        if (this.gridS > 0) this.emitGridUpTo(startT, tau, t, w0);
-        this.off += tau;
-        if (this.off >= this.tb) {
-          const k = Math.floor(this.off / this.tb);
-          this.cyc += k;
-          this.off -= k * this.tb;
-        }
-        if (this.cyc !== prevCyc || this.off !== prevOff) {
-          this.instantCount = 0;
-          this.instantGuardCount = 0;
-        }
-        this.checkFinite(w1, t);
-        for (let j = 0; j < this.n; j++) w0[j] = w1[j]!;
-        this.onInstant();
-        if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
-        this.fireGuard(this.active[guardIdx]!);
-        this.afterEvents(t.key);
+      counters.segments++;
+      const gi = this.active.length === 0 ? -1 : this.screenGuards(t, h);
+      if (gi >= 0 && this.screen[9]! < h * (1 - 1e-14)) {
+        this.guardInside(t, gi);
         return;
       }
-      tr?.segment?.(t.key, h, w0);
-      if (this.intRefs.length !== 0) this.accumulate(t, h, w0);
-      if (this.gridS > 0) this.emitGridUpTo(this.timeS, h, t, w0);
-      this.checkFinite(w1, t);
-      for (let j = 0; j < this.nx; j++) w0[j] = w1[j]!;
+      if (this.observed) this.observeSegment(t, h);
+      let sum = 0;
+      for (let i = 0; i < nx; i++) sum += w1[i]!;
+      if (!Number.isFinite(sum)) this.checkFinite(w1, t);
+      for (let i = 0; i < nx; i++) w0[i] = w1[i]!;
       this.cyc = c1;
       this.off = o1;
-      this.instantCount = 0;
+      this.instantCount = 1;
       this.instantGuardCount = 0;
-      if (guardTau >= 0) {
-        // a guard at the segment end: handled together with the scheduled events there
-        this.onInstant();
-        if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
-        this.fireGuard(this.active[guardIdx]!);
-      } else {
-        this.onInstant();
-        if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
-      }
+      if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
+      // a guard at the segment end is handled together with the scheduled events there
+      if (gi >= 0) this.fireGuard(this.active[gi]!);
     } else {
       this.cyc = c1;
       this.off = o1;
       this.onInstant();
     }
-    this.handleScheduled(t.key);
+    const before = t.key;
+    // Timers due now are handled here (the general handler is a call too large to inline); a
+    // source step or the stop goes to the general handler with the rest of the instant.
+    const ctrl = this.ctrl;
+    for (;;) {
+      if (this.pLen !== 0) this.applyQueued();
+      const i = this.qLen - 1;
+      if (i < 0 || this.qCyc[i] !== c1 || this.qOff[i] !== o1) break;
+      if (this.qKind[i] !== KIND_TIMER || ctrl === undefined) {
+        this.handleScheduled(before);
+        return;
+      }
+      this.qLen = i;
+      counters.events++;
+      ctrl.onEvent(this.ctx, this.qTag[i]!);
+    }
+    // switching: without diodes, a table lookup unless the new topology holds an inductor
+    const key = this.key;
+    const table = this.topoTable;
+    if (this.diodeCount === 0 && table !== null && !this.observed && !this.recordEvents) {
+      const nt = key === before ? t : table[key] ?? this.lookupTopology(key);
+      if (nt.heldInductors.length !== 0) this.settleAndSwitch(before);
+      else {
+        this.turnedOff = 0;
+        if (nt !== t) {
+          this.topo = nt;
+          const dense = this.activeDense!;
+          if (this.activeDenseArm[key] === this.armKey) this.active = dense[key]!;
+          else this.activeDirty = true;
+        }
+      }
+    } else this.settleAndSwitch(before);
+    if (this.stopRequest !== null) this.finish('stopped', this.stopRequest);
+  }
+
+  /**
+   * Screens every active guard over the segment just propagated (w -> w1 over h) and locates
+   * the earliest crossing. Returns the guard's index in the active list, or -1, with the time
+   * in screen[9] and the state there in locBest.
+   */
+  private screenGuards(t: Topology, h: number): number {
+    const w0 = this.w, w1 = this.w1;
+    const act = this.active;
+    const sc = this.screen;
+    let guardTau = -1;
+    let guardIdx = -1;
+    for (let gi = 0; gi < act.length; gi++) {
+      const g = act[gi]!;
+      // the six dot products in one pass (each sum in the order of its own loop)
+      const row = g.row, drow = g.drow, d4row = g.d4row;
+      let f0 = 0, f1 = 0, d0 = 0, d1 = 0, q0 = 0, q1 = 0;
+      if (row.length === 4) {
+        // the smallest stage written out (same sums, same order)
+        const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
+        const b0 = w1[0]!, b1 = w1[1]!, b2 = w1[2]!, b3 = w1[3]!;
+        const r0 = row[0]!, r1 = row[1]!, r2 = row[2]!, r3 = row[3]!;
+        const p0 = drow[0]!, p1 = drow[1]!, p2 = drow[2]!, p3 = drow[3]!;
+        const s0 = d4row[0]!, s1 = d4row[1]!, s2 = d4row[2]!, s3 = d4row[3]!;
+        f0 = 0 + r0 * a0 + r1 * a1 + r2 * a2 + r3 * a3;
+        f1 = 0 + r0 * b0 + r1 * b1 + r2 * b2 + r3 * b3;
+        d0 = 0 + p0 * a0 + p1 * a1 + p2 * a2 + p3 * a3;
+        d1 = 0 + p0 * b0 + p1 * b1 + p2 * b2 + p3 * b3;
+        q0 = 0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3;
+        q1 = 0 + s0 * b0 + s1 * b1 + s2 * b2 + s3 * b3;
+      } else for (let j = 0; j < row.length; j++) {
+        const a = w0[j]!, b = w1[j]!;
+        f0 += row[j]! * a;
+        f1 += row[j]! * b;
+        d0 += drow[j]! * a;
+        d1 += drow[j]! * b;
+        q0 += d4row[j]! * a;
+        q1 += d4row[j]! * b;
+      }
+      const e4 = Math.max(Math.abs(q0), Math.abs(q1));
+      for (let pass = 0; pass < 2; pass++) {
+        const sign = g.dir !== 0 ? g.dir : pass === 0 ? 1 : -1;
+        if (g.dir !== 0 && pass === 1) break;
+        const sf0 = sign * f0;
+        const sd0 = sign * d0;
+        // a guard that has just fired sits at zero within the rounding of its own dot product:
+        // count it as already crossed when it moves upward
+        const startAbove = sf0 > 0 || (sf0 === 0 && sd0 >= 0) || (sd0 > 0 && Math.abs(sf0) <= 8e-16 * Simulation.dotScale(g.row, w0));
+        sc[0] = startAbove ? Math.max(sf0, 0) : sf0;
+        sc[1] = sign * f1;
+        sc[2] = sd0;
+        sc[3] = sign * d1;
+        sc[4] = e4;
+        sc[5] = h;
+        if (!Simulation.maybeRising(sc)) continue;
+        // sign and limit go in the scratch too, and tau comes back in it (no boxed doubles)
+        sc[6] = sign;
+        sc[7] = guardTau >= 0 ? guardTau : h;
+        const tau = this.locate(t, g, w0, startAbove) ? sc[8]! : -1;
+        if (tau >= 0 && (guardTau < 0 || tau < guardTau)) {
+          guardTau = tau;
+          guardIdx = gi;
+          for (let j = 0; j < this.n; j++) this.locBest[j] = this.locFound[j]!;
+        }
+      }
+    }
+    sc[9] = guardTau;
+    return guardIdx;
+  }
+
+  /** A guard event inside the segment: advances to it, fires it and switches. */
+  private guardInside(t: Topology, gi: number): void {
+    const tau = this.screen[9]!;
+    const w0 = this.w, w1 = this.w1;
+    for (let j = 0; j < this.n; j++) w1[j] = this.locBest[j]!;
+    const prevCyc = this.cyc, prevOff = this.off;
+    if (this.observed) this.observeSegment(t, tau);
+    this.off += tau;
+    if (this.off >= this.tb) {
+      const k = Math.floor(this.off / this.tb);
+      this.cyc += k;
+      this.off -= k * this.tb;
+    }
+    if (this.cyc !== prevCyc || this.off !== prevOff) {
+      this.instantCount = 0;
+      this.instantGuardCount = 0;
+    }
+    this.checkFinite(w1, t);
+    for (let j = 0; j < this.n; j++) w0[j] = w1[j]!;
+    this.onInstant();
+    if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
+    this.fireGuard(this.active[gi]!);
+    this.afterEvents(t.key);
+  }
+
+  /** What observers see of a segment from the current state over h (before time advances). */
+  private observeSegment(t: Topology, h: number): void {
+    this.options.trace?.segment?.(t.key, h, this.w);
+    if (this.intRefs.length !== 0) this.accumulate(t, h, this.w);
+    if (this.gridS > 0) this.emitGridUpTo(this.timeS, h, t, this.w);
   }
 
   /** Handles every scheduled event at the current instant, in the defined order, then switches. */
@@ -1730,100 +1794,6 @@ export class Simulation {
       }
     }
     this.afterEvents(before);
-  }
-
-  /**
-   * The common path, taken while no guard is armed in the current topology, no sink, trace or
-   * integral is attached and the segment's propagator is cached: the same steps as stepInner
-   * with nothing else. Returns to the general step at the first event that needs more.
-   */
-  private fastLoop(): void {
-    const nx = this.nx, n = this.n, tb = this.tb;
-    const w = this.w, w1 = this.w1;
-    const counters = this.counters;
-    const ctrl = this.ctrl, ctx = this.ctx;
-    const table = this.topoTable, dense = this.activeDense, denseArm = this.activeDenseArm;
-    // without diodes and with a dense table, switching is a table lookup (settle() has nothing
-    // to do unless the new topology holds an inductor)
-    const plainSwitch = this.diodeCount === 0 && table !== null && dense !== null;
-    for (;;) {
-      if (this.activeDirty) this.rebuildActive();
-      if (this.active.length !== 0 || this.stopRequest !== null || this.status !== 'running') return;
-      if (this.pLen !== 0) this.applyQueued();
-      const qi = this.qLen - 1;
-      const c1 = this.qCyc[qi]!, o1 = this.qOff[qi]!;
-      const h = (c1 - this.cyc) * tb + (o1 - this.off);
-      const t = this.topo;
-      if (h > 0) {
-        if (t.lastH !== h) return;
-        const E = t.lastE!;
-        let sum = 0;
-        if (n === 4 && nx === 2) {
-          // the smallest stage written out here: a call would not be inlined within the
-          // budget that the controller's calls need
-          const a0 = w[0]!, a1 = w[1]!, a2 = w[2]!, a3 = w[3]!;
-          const s0 = 0 + E[0]! * a0 + E[1]! * a1 + E[2]! * a2 + E[3]! * a3;
-          const s1 = 0 + E[4]! * a0 + E[5]! * a1 + E[6]! * a2 + E[7]! * a3;
-          w1[0] = s0;
-          w1[1] = s1;
-          sum = s0 + s1;
-        } else {
-          topRows(E, nx, n, w, w1);
-          for (let i = 0; i < nx; i++) sum += w1[i]!;
-        }
-        if (!Number.isFinite(sum)) return;
-        for (let i = 0; i < nx; i++) w[i] = w1[i]!;
-        counters.segments++;
-        counters.propagatorCacheHits++;
-        this.cyc = c1;
-        this.off = o1;
-        this.instantCount = 0;
-        this.instantGuardCount = 0;
-      } else {
-        this.cyc = c1;
-        this.off = o1;
-        this.onInstant();
-      }
-      // Timers due now are handled here (the general handler is a call too large to inline);
-      // a source step or the stop goes to the general handler with the rest of the instant.
-      const before = t.key;
-      let general = ctrl === undefined;
-      for (;;) {
-        if (this.pLen !== 0) this.applyQueued();
-        const i = this.qLen - 1;
-        if (i < 0 || this.qCyc[i] !== c1 || this.qOff[i] !== o1) break;
-        if (this.qKind[i] !== KIND_TIMER || ctrl === undefined) {
-          general = true;
-          break;
-        }
-        const tag = this.qTag[i]!;
-        this.qLen = i;
-        counters.events++;
-        ctrl.onEvent(ctx, tag);
-      }
-      if (general) {
-        this.handleScheduled(before);
-        continue;
-      }
-      const key = this.key;
-      if (!plainSwitch) this.settleAndSwitch(before);
-      else if (key === before) {
-        if (t.heldInductors.length !== 0) this.settleAndSwitch(before);
-        else this.turnedOff = 0;
-      } else {
-        let nt = table[key];
-        if (nt === undefined) nt = this.lookupTopology(key);
-        if (nt.heldInductors.length !== 0) this.settleAndSwitch(before);
-        else {
-          this.turnedOff = 0;
-          this.topo = nt;
-          // the active guard list of the new topology, when cached for the armed set
-          if (denseArm[key] === this.armKey) this.active = dense[key]!;
-          else this.activeDirty = true;
-        }
-      }
-      if (this.stopRequest !== null) this.finish('stopped', this.stopRequest);
-    }
   }
 
   private onInstant(): void {
@@ -1903,17 +1873,11 @@ export class Simulation {
 
   /** Runs to the end and returns the result. */
   run(): RunResult {
-    const fast = this.options.sink === undefined && this.options.trace === undefined && this.intRefs.length === 0 && this.gridS === 0 && this.useCache;
-    while (this.status === 'running') {
-      if (fast) {
-        try {
-          this.fastLoop();
-        } catch (err) {
-          this.fail(err);
-        }
-        if (this.status !== 'running') break;
-      }
-      this.step();
+    // one try around the loop (a failure ends the run)
+    try {
+      while (this.status === 'running') this.advance();
+    } catch (err) {
+      this.fail(err);
     }
     return this.result();
   }
