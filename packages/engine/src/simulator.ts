@@ -220,7 +220,8 @@ function grown<T extends Float64Array | Int32Array>(a: T): T {
 }
 
 /** Number of Taylor terms giving a truncation below 2e-17 (relative) for rho = ||A|| h <= 1. */
-function taylorOrder(rho: number): number {
+function taylorOrder(rhoSigned: number): number {
+  const rho = Math.abs(rhoSigned); // a backward step needs the same order
   if (rho === 0) return 1;
   let term = 1;
   for (let k = 1; k <= TAYLOR_MAX; k++) {
@@ -284,6 +285,15 @@ interface ActiveGuard {
   row: Float64Array;
   drow: Float64Array;
   d4row: Float64Array;
+  /** sums of |row_j|, |drow_j| and |(row M^2)_j|, for the screens' bounds */
+  rnorm: number;
+  dnorm: number;
+  d2norm: number;
+  /** the anchor of located crossings: a duration and its propagator (null until the first
+   * crossing is located), and the last crossing's offset in the segment */
+  anchorH: number;
+  anchorE: Float64Array | null;
+  lastRoot: number;
   dir: number; // +1 rising, -1 falling, 0 either
   owner: number; // >= 0 controller guard index, < 0: -(device+1)
 }
@@ -326,9 +336,10 @@ export class Simulation {
   /** the duration argument of propagate and taylor (a double argument to a call that is not
    * inlined would be boxed on the heap) */
   private readonly hArg = new Float64Array(1);
-  /** arguments of maybeRising (0-5) and of locate (6, 7), the time locate found (8), and the
-   * time of the earliest guard crossing in the segment (9) */
-  private readonly screen = new Float64Array(10);
+  /** arguments of maybeRising (0-5) and of locate (6, 7), the time locate found (8), the
+   * time of the earliest guard crossing in the segment (9), and the bound exp(normM h)
+   * ||w0||_inf of the state over the segment (10) */
+  private readonly screen = new Float64Array(11);
   // settings
   private readonly iTol: number;
   private readonly vTol: number;
@@ -792,8 +803,15 @@ export class Simulation {
       return out;
     };
     const d1 = mul(row);
-    const d4 = mul(mul(mul(d1)));
-    return { row, drow: d1, d4row: d4, dir: 0, owner: 0 };
+    const d2 = mul(d1);
+    const d4 = mul(mul(d2));
+    let rnorm = 0, dnorm = 0, d2norm = 0;
+    for (let j = 0; j < n; j++) {
+      rnorm += Math.abs(row[j]!);
+      dnorm += Math.abs(d1[j]!);
+      d2norm += Math.abs(d2[j]!);
+    }
+    return { row, drow: d1, d4row: d4, rnorm, dnorm, d2norm, anchorH: Number.NaN, anchorE: null, lastRoot: Number.NaN, dir: 0, owner: 0 };
   }
 
   private rebuildActive(): void {
@@ -855,7 +873,7 @@ export class Simulation {
       }
       let base = rows[g];
       if (base === undefined) base = rows[g] = this.guardRowsFor(t, t.row(this.guardRefs[g]!));
-      const ag: ActiveGuard = { row: base.row, drow: base.drow, d4row: base.d4row, dir: 0, owner: 0 };
+      const ag: ActiveGuard = { ...base, dir: 0, owner: 0 };
       ag.dir = this.guardDir[g]!;
       ag.owner = g;
       act.push(ag);
@@ -1133,6 +1151,115 @@ export class Simulation {
    * polished by safeguarded Newton on the polynomial.
    */
   private locate(t: Topology, g: ActiveGuard, w0: Float64Array, startAbove: boolean): boolean {
+    const sc = this.screen;
+    let r = -1;
+    if (g.anchorE !== null && sc[7] === sc[5]) r = this.locateAnchored(t, g, w0, startAbove);
+    if (r === 0) return false;
+    if (r < 0 && !this.locateScan(t, g, w0, startAbove)) return false;
+    // Anchor the next locations of this guard at this crossing once it has settled (the last
+    // one was close) and the anchor is not: a fresh propagator, used while crossings stay near.
+    const tau = sc[8]!;
+    const near = Math.abs(tau - g.lastRoot) * t.normA <= 0.05;
+    g.lastRoot = tau;
+    if (this.useCache && near && !(Math.abs(tau - g.anchorH) * t.normA <= 0.05)) {
+      g.anchorE = t.computeE(tau);
+      g.anchorH = tau;
+      this.counters.exponentials++;
+    }
+    return true;
+  }
+
+  /**
+   * Locates the crossing from the guard's anchor, when the guard is certified monotone over
+   * the segment: g' >= (g'(0) + g'(h) - h max|g''|) / 2 > 0, with max|g''| bounded by
+   * |row M^2|_1 exp(normM h) ||w0||_inf (so one crossing at most, and the segment's end
+   * values decide whether there is one). The state at the anchor is one product with its
+   * propagator; the crossing is then a short Taylor step away (Newton on that polynomial).
+   * Returns 1 (found: time in screen[8], state in locFound), 0 (certainly none) or -1 (not
+   * applicable: the caller scans).
+   */
+  private locateAnchored(t: Topology, g: ActiveGuard, w0: Float64Array, startAbove: boolean): number {
+    const sc = this.screen;
+    const n = this.n, nx = this.nx;
+    const sign = sc[6]!, h = sc[7]!;
+    const f0 = sc[0]!, f1 = sc[1]!, d0 = sc[2]!, d1 = sc[3]!;
+    if (!(d0 + d1 - h * g.d2norm * sc[10]! > 0)) return -1;
+    // increasing over the segment: an upward crossing only from below zero to at or above it
+    if (startAbove || f0 >= 0 || f1 < 0) return 0;
+    const wa = this.locWa, row = g.row, drow = g.drow;
+    const E = g.anchorE!;
+    topRows(E, nx, n, w0, wa);
+    for (let j = nx; j < n; j++) wa[j] = w0[j]!;
+    let ga = 0, da = 0;
+    for (let j = 0; j < n; j++) {
+      ga += row[j]! * wa[j]!;
+      da += drow[j]! * wa[j]!;
+    }
+    ga *= sign;
+    da *= sign;
+    if (!(da > 0)) return -1;
+    // twice the Newton step from the anchor spans the polynomial: the root is near s = 1/2
+    const span = (-2 * ga) / da;
+    if (!(Math.abs(span) * t.normA <= 0.25) || span === 0) return -1;
+    this.hArg[0] = span;
+    const K = this.taylor(t, wa, this.locWb);
+    const V = this.taylorV, pc = this.polyC;
+    // p(s) = sum pc_k s^k: the first term is the guard at the anchor; beyond it only the
+    // states are non-zero
+    pc[0] = ga;
+    if (nx === 2) {
+      const r0 = row[0]!, r1 = row[1]!;
+      for (let k = 1, o = n; k <= K; k++, o += n) pc[k] = sign * (0 + r0 * V[o]! + r1 * V[o + 1]!);
+    } else {
+      for (let k = 1; k <= K; k++) {
+        let s = 0;
+        const o = k * n;
+        for (let j = 0; j < nx; j++) s += row[j]! * V[o + j]!;
+        pc[k] = sign * s;
+      }
+    }
+    // Newton from s = 1/2 (increasing in s when span > 0, decreasing when the root lies before
+    // the anchor). The step is a fraction normA |span| <= 1/4 of the polynomial's curvature
+    // scale, so once a step is below 1e-9 the next one would be below 1e-18: converged.
+    let x = 0.5;
+    let done = false;
+    for (let it = 0; it < 8 && !done; it++) {
+      let fx = pc[K]!;
+      let dx = 0;
+      for (let k = K - 1; k >= 0; k--) {
+        dx = dx * x + fx;
+        fx = fx * x + pc[k]!;
+      }
+      if (dx === 0) return -1;
+      const step = fx / dx;
+      x -= step;
+      done = Math.abs(step) <= 1e-9 * Math.abs(x);
+    }
+    if (!done || !(x >= -0.5 && x <= 1.5)) return -1;
+    const tau = g.anchorH + x * span;
+    if (!(tau > 0 && tau <= h)) return -1;
+    const out = this.locFound;
+    if (nx === 2) {
+      let v0 = V[K * n]!, v1 = V[K * n + 1]!;
+      for (let k = K - 1, o = (K - 1) * n; k >= 0; k--, o -= n) {
+        v0 = v0 * x + V[o]!;
+        v1 = v1 * x + V[o + 1]!;
+      }
+      out[0] = v0;
+      out[1] = v1;
+    } else {
+      for (let j = 0; j < nx; j++) {
+        let v = V[K * n + j]!;
+        for (let k = K - 1; k >= 0; k--) v = v * x + V[k * n + j]!;
+        out[j] = v;
+      }
+    }
+    for (let j = nx; j < n; j++) out[j] = w0[j]!;
+    sc[8] = tau;
+    return 1;
+  }
+
+  private locateScan(t: Topology, g: ActiveGuard, w0: Float64Array, startAbove: boolean): boolean {
     const n = this.n, nx = this.nx;
     const sc = this.screen;
     const sign = sc[6]!, h = sc[7]!;
@@ -1680,10 +1807,28 @@ export class Simulation {
     const sc = this.screen;
     let guardTau = -1;
     let guardIdx = -1;
+    // Pre-screen: over the segment |g(s) - g(0)| <= h max |g'| <= h |drow|_1 max ||w(s)||_inf
+    // <= h |drow|_1 exp(normM h) ||w0||_inf, so a guard farther than that from zero cannot
+    // cross (the second term covers the rounding of g(0)). One dot product instead of six.
+    let wmax = 0;
+    if (w0.length === 4) wmax = Math.max(Math.abs(w0[0]!), Math.abs(w0[1]!), Math.abs(w0[2]!), Math.abs(w0[3]!));
+    else for (let j = 0; j < w0.length; j++) {
+      const a = Math.abs(w0[j]!);
+      if (a > wmax) wmax = a;
+    }
+    const grow = Math.exp(t.normM * h) * wmax * (1 + 1e-9);
+    const reach = h * grow;
+    sc[10] = grow;
     for (let gi = 0; gi < act.length; gi++) {
       const g = act[gi]!;
-      // the six dot products in one pass (each sum in the order of its own loop)
       const row = g.row, drow = g.drow, d4row = g.d4row;
+      {
+        let f = 0;
+        if (row.length === 4) f = 0 + row[0]! * w0[0]! + row[1]! * w0[1]! + row[2]! * w0[2]! + row[3]! * w0[3]!;
+        else for (let j = 0; j < row.length; j++) f += row[j]! * w0[j]!;
+        if (Math.abs(f) > g.dnorm * reach + 1e-14 * g.rnorm * wmax) continue;
+      }
+      // the six dot products in one pass (each sum in the order of its own loop)
       let f0 = 0, f1 = 0, d0 = 0, d1 = 0, q0 = 0, q1 = 0;
       if (row.length === 4) {
         // the smallest stage written out (same sums, same order)

@@ -41,6 +41,9 @@ export class Topology {
   readonly m: Float64Array;
   /** Infinity norm of the state block A. */
   readonly normA: number;
+  /** The infinity norm of the state rows of the extended matrix M = [A B; 0 0] (inputs are
+   * constant states): ||exp(M t) w||_inf <= exp(normM t) ||w||_inf. */
+  readonly normM: number;
   /** A power of two with normA * baseStep <= 1 (Infinity when A = 0). */
   readonly baseStep: number;
   /** state indices of inductors held at zero current (no path in this topology) */
@@ -101,6 +104,13 @@ export class Topology {
       if (s > norm) norm = s;
     }
     this.normA = norm;
+    let normM = 0;
+    for (let i = 0; i < nx; i++) {
+      let s = 0;
+      for (let j = 0; j < n; j++) s += Math.abs(m[i * n + j]!);
+      if (s > normM) normM = s;
+    }
+    this.normM = normM;
     this.baseStep = norm === 0 ? Infinity : 2 ** Math.floor(Math.log2(1 / norm));
     this.deviceCurrent = circuit.devices.map((d) => this.unknownRow(this.N + d.branch));
     this.deviceVoltage = circuit.devices.map((d) => {
