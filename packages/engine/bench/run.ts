@@ -65,13 +65,15 @@ function versusOdex(k: Key, cycles: number): string {
   const s = SCENARIOS[k];
   const model = new CircuitModel(s.circuit);
   const run = () => simulate(model, { stopS: cycles * PERIOD_S, timeBaseS: PERIOD_S, controller: openLoop(s.sync) });
-  run();
-  run();
-  // best of 7 for the engine and best of 3 for odex: the same statistic on both sides
-  let tEngine = Infinity;
+  // Both sides warm before timing: the engine by at least 200 ms of its own runs (a short run
+  // from zero is only a few hundred microseconds, and the optimiser needs tens of runs to settle
+  // on a new circuit), odex by its runs in the tolerance search below. Then best of 10 for the
+  // engine and best of 3 for odex.
   let r = run();
-  let t0 = 0;
-  for (let i = 0; i < 7; i++) {
+  let t0 = performance.now();
+  for (let i = 0; i < 40 || performance.now() - t0 < 200; i++) r = run();
+  let tEngine = Infinity;
+  for (let i = 0; i < 10; i++) {
     t0 = performance.now();
     r = run();
     tEngine = Math.min(tEngine, performance.now() - t0);
@@ -133,9 +135,10 @@ console.log('edgewise engine benchmark (warm, best of 5; invented scenarios of t
 console.log(`node ${process.version}, ${new Date().toISOString()}`);
 const bare = bareLoopRate(2_000_000);
 console.log(`bare loop of two cached propagators (S1 ceiling on this machine): ${fmt(bare)} cycles/s`);
+// each scenario's two measurements together, after its own warm-up
 for (const k of keys) {
   const rate = engineRate(k, 200_000);
   console.log(`${SCENARIOS[k].title}: ${fmt(rate)} cycles/s over 200,000 cycles (target ${fmt(targets[k])}); ${(rate / bare).toFixed(2)} of the bare loop`);
+  console.log(versusOdex(k, 2000));
 }
-for (const k of keys) console.log(versusOdex(k, 2000));
 console.log(memoryFlat(1_000_000));

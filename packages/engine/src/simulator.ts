@@ -149,6 +149,8 @@ export interface RunCounters {
   propagatorCacheMisses: number;
   taylorSegments: number;
   exponentials: number;
+  /** guard crossings located by a short step from the guard's anchor (the rest by a scan) */
+  anchoredLocations: number;
 }
 
 /** Outcome of a run: a value, not an exception. */
@@ -309,7 +311,7 @@ export class Simulation {
   error: SimulationError | undefined;
   readonly counters: RunCounters = {
     segments: 0, events: 0, guardEvents: 0, topologies: 0,
-    propagatorCacheHits: 0, propagatorCacheMisses: 0, taylorSegments: 0, exponentials: 0,
+    propagatorCacheHits: 0, propagatorCacheMisses: 0, taylorSegments: 0, exponentials: 0, anchoredLocations: 0,
   };
 
   private readonly c: CompiledCircuit;
@@ -406,6 +408,8 @@ export class Simulation {
   /** topology keys met in one consistent-switching step (reused: settle runs at every event) */
   private visited = new Int32Array(8);
   private visitedCount = 0;
+  /** the topology settle() ended in */
+  private settled: Topology | undefined = undefined;
   private readonly stepTimes: { atS: number; input: number; value: number }[];
 
   constructor(model: CircuitModel | CircuitSpec, options: RunOptions) {
@@ -1094,6 +1098,8 @@ export class Simulation {
   }
 
   private static dot(r: Float64Array, w: Float64Array): number {
+    // the smallest stage written out (the same sum in the same order)
+    if (r.length === 4) return 0 + r[0]! * w[0]! + r[1]! * w[1]! + r[2]! * w[2]! + r[3]! * w[3]!;
     let s = 0;
     for (let j = 0; j < r.length; j++) s += r[j]! * w[j]!;
     return s;
@@ -1256,6 +1262,7 @@ export class Simulation {
     }
     for (let j = nx; j < n; j++) out[j] = w0[j]!;
     sc[8] = tau;
+    this.counters.anchoredLocations++;
     return 1;
   }
 
@@ -1421,7 +1428,10 @@ export class Simulation {
       }
       // inductors with no path
       const held = t.heldInductors;
-      if (held.length === 0 && this.diodeCount === 0) return;
+      if (held.length === 0 && this.diodeCount === 0) {
+        this.settled = t;
+        return;
+      }
       let interrupted = -1;
       for (let i = 0; i < held.length; i++) {
         const s = held[i]!;
@@ -1476,7 +1486,10 @@ export class Simulation {
           }
         }
       }
-      if (worst < 0) return;
+      if (worst < 0) {
+        this.settled = t;
+        return;
+      }
       this.flip(worst);
     }
   }
@@ -1986,12 +1999,15 @@ export class Simulation {
     let t: Topology | undefined = this.key === this.topo.key ? this.topo : undefined;
     if (this.diodeCount !== 0 || (t ??= this.lookupTopology(this.key)).heldInductors.length !== 0) {
       this.settle();
-      if (t === undefined || this.key !== t.key) t = this.key === this.topo.key ? this.topo : this.lookupTopology(this.key);
+      t = this.settled!;
     }
     this.turnedOff = 0;
     if (t !== this.topo) {
       this.topo = t;
-      this.activeDirty = true;
+      // the active guard list of the new topology, when cached for the armed set
+      const dense = this.activeDense;
+      if (dense !== null && this.activeDenseArm[t.key] === this.armKey) this.active = dense[t.key]!;
+      else this.activeDirty = true;
     }
     if (this.key !== before) this.options.trace?.switched?.(this.timeS, before, this.key, this.w);
     if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.After);

@@ -104,3 +104,59 @@ describe('runs sharing one compiled model', () => {
     expect(Math.abs(first(0.99, 'rising') - tStar)).toBeLessThan(1e-12 * period);
   });
 });
+
+describe('anchored location', () => {
+  // A diode buck in DCM (invented values): the diode's zero-current crossing comes every cycle.
+  const T = 2e-6;
+  const buck: CircuitSpec = {
+    elements: [
+      { kind: 'voltage-source', id: 'VIN', pos: 'in', neg: '0', volts: 12 },
+      { kind: 'switch', id: 'HS', drain: 'in', source: 'sw', gate: 'hs', onOhms: 0.01 },
+      { kind: 'diode', id: 'D1', anode: '0', cathode: 'sw', forwardVolts: 0.4, onOhms: 0.02 },
+      { kind: 'inductor', id: 'L1', a: 'sw', b: 'out', henries: 4.7e-6, seriesOhms: 0.02 },
+      { kind: 'capacitor', id: 'C1', a: 'out', b: '0', farads: 22e-6, esrOhms: 0.005 },
+      { kind: 'resistor', id: 'RLOAD', a: 'out', b: '0', ohms: 40 },
+    ],
+  };
+  const pwm = (): Controller => {
+    let hs = -1;
+    return {
+      start(ctx) {
+        hs = ctx.gate('hs');
+        ctx.at(0, 0, 0);
+      },
+      onEvent(ctx, tag) {
+        if (tag === 0) {
+          ctx.at(0, ctx.cycle + 1, 0);
+          ctx.at(1, ctx.cycle, 0.42 * T);
+          ctx.setGate(hs, true);
+        } else ctx.setGate(hs, false);
+      },
+    };
+  };
+
+  it('a short step from the anchor finds the same crossings as the scan from the segment start (1e-12 of the period)', () => {
+    // exp(M (a + d)) = exp(M d) exp(M a): the same exact solution, located two ways
+    const run = (cache: boolean) => {
+      const times: number[] = [];
+      const r = simulate(buck, {
+        stopS: 3000 * T, timeBaseS: T, controller: pwm(), settings: { cachePropagators: cache },
+        trace: { guard: (e) => times.push(e.timeS) },
+      });
+      expect(r.status).toBe('finished');
+      return { r, times };
+    };
+    const anchored = run(true);
+    const scanned = run(false);
+    expect(scanned.r.counters.anchoredLocations).toBe(0);
+    expect(anchored.r.counters.anchoredLocations).toBeGreaterThan(0.95 * anchored.times.length);
+    expect(anchored.times.length).toBe(scanned.times.length);
+    expect(anchored.times.length).toBeGreaterThan(2900);
+    let worst = 0;
+    anchored.times.forEach((t, i) => (worst = Math.max(worst, Math.abs(t - scanned.times[i]!))));
+    expect(worst).toBeLessThan(1e-12 * T);
+    for (let i = 0; i < anchored.r.state.length; i++) {
+      expect(Math.abs(anchored.r.state[i]! - scanned.r.state[i]!)).toBeLessThanOrEqual(1e-12 * (Math.abs(scanned.r.state[i]!) + 1e-9));
+    }
+  });
+});
