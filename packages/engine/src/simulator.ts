@@ -1752,7 +1752,12 @@ export class Simulation {
         this.propagate(t, w0, w1);
       }
       counters.segments++;
-      const gi = this.active.length === 0 ? -1 : this.screenGuards(t, h);
+      // h goes in the scratch (a double argument to a call that is not inlined is boxed)
+      let gi = -1;
+      if (this.active.length !== 0) {
+        this.screen[5] = h;
+        gi = this.screenGuards(t);
+      }
       if (gi >= 0 && this.screen[9]! < h * (1 - 1e-14)) {
         this.guardInside(t, gi);
         return;
@@ -1810,14 +1815,16 @@ export class Simulation {
   }
 
   /**
-   * Screens every active guard over the segment just propagated (w -> w1 over h) and locates
+   * Screens every active guard over the segment just propagated (w -> w1 over h = screen[5])
+   * and locates
    * the earliest crossing. Returns the guard's index in the active list, or -1, with the time
    * in screen[9] and the state there in locBest.
    */
-  private screenGuards(t: Topology, h: number): number {
+  private screenGuards(t: Topology): number {
     const w0 = this.w, w1 = this.w1;
     const act = this.active;
     const sc = this.screen;
+    const h = sc[5]!;
     let guardTau = -1;
     let guardIdx = -1;
     // Pre-screen: over the segment |g(s) - g(0)| <= h max |g'| <= h |drow|_1 max ||w(s)||_inf
