@@ -1732,7 +1732,28 @@ export class Simulation {
     const w1 = this.w1;
     const nx = this.nx, n = this.n;
     const counters = this.counters;
-    if (h > 0) {
+    if (h > 0 && n === 4 && nx === 2 && t.lastH === h && this.active.length === 0 && !this.observed && this.useCache) {
+      // The commonest segment of the smallest stage (cached propagator, nothing to screen or
+      // observe) written out into the state itself; the same sums in the same order as below.
+      const E = t.lastE!;
+      const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
+      const s0 = 0 + E[0]! * a0 + E[1]! * a1 + E[2]! * a2 + E[3]! * a3;
+      const s1 = 0 + E[4]! * a0 + E[5]! * a1 + E[6]! * a2 + E[7]! * a3;
+      if (!Number.isFinite(0 + s0 + s1)) {
+        w1[0] = s0;
+        w1[1] = s1;
+        this.checkFinite(w1, t);
+      }
+      w0[0] = s0;
+      w0[1] = s1;
+      counters.propagatorCacheHits++;
+      counters.segments++;
+      this.cyc = c1;
+      this.off = o1;
+      this.instantCount = 1;
+      this.instantGuardCount = 0;
+      if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
+    } else if (h > 0) {
       const E = t.lastH === h && this.useCache ? t.lastE! : null;
       if (E !== null) {
         counters.propagatorCacheHits++;
