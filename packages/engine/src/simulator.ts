@@ -1176,6 +1176,27 @@ export class Simulation {
   }
 
   /**
+   * The guard polynomial's terms 1..K from the Taylor vectors in taylorV: polyC[k] = sign *
+   * row . V_k, with the sign in screen[6]. Beyond the first term only the states are non-zero:
+   * adding the zero products of the input columns would not change a sum that starts at +0.
+   */
+  private guardTerms(row: Float64Array, K: number): void {
+    const n = this.n, nx = this.nx, V = this.taylorV, pc = this.polyC;
+    const sign = this.screen[6]!;
+    if (nx === 2) {
+      const r0 = row[0]!, r1 = row[1]!;
+      for (let k = 1, o = n; k <= K; k++, o += n) pc[k] = sign * (0 + r0 * V[o]! + r1 * V[o + 1]!);
+    } else {
+      for (let k = 1; k <= K; k++) {
+        let s = 0;
+        const o = k * n;
+        for (let j = 0; j < nx; j++) s += row[j]! * V[o + j]!;
+        pc[k] = sign * s;
+      }
+    }
+  }
+
+  /**
    * Locates the crossing from the guard's anchor, when the guard is certified monotone over
    * the segment: g' >= (g'(0) + g'(h) - h max|g''|) / 2 > 0, with max|g''| bounded by
    * |row M^2|_1 exp(normM h) ||w0||_inf (so one crossing at most, and the segment's end
@@ -1213,17 +1234,7 @@ export class Simulation {
     // p(s) = sum pc_k s^k: the first term is the guard at the anchor; beyond it only the
     // states are non-zero
     pc[0] = ga;
-    if (nx === 2) {
-      const r0 = row[0]!, r1 = row[1]!;
-      for (let k = 1, o = n; k <= K; k++, o += n) pc[k] = sign * (0 + r0 * V[o]! + r1 * V[o + 1]!);
-    } else {
-      for (let k = 1; k <= K; k++) {
-        let s = 0;
-        const o = k * n;
-        for (let j = 0; j < nx; j++) s += row[j]! * V[o + j]!;
-        pc[k] = sign * s;
-      }
-    }
+    this.guardTerms(row, K);
     // Newton from s = 1/2 (increasing in s when span > 0, decreasing when the root lies before
     // the anchor). The step is a fraction normA |span| <= 1/4 of the polynomial's curvature
     // scale, so once a step is below 1e-9 the next one would be below 1e-18: converged.
@@ -1284,19 +1295,7 @@ export class Simulation {
         for (let j = 0; j < n; j++) s += row[j]! * V[j]!;
         pc[0] = sign * s;
       }
-      // beyond the first term only the states are non-zero: adding the zero products of the
-      // input columns would not change a sum that starts at +0 (it is never -0)
-      if (nx === 2) {
-        const r0 = row[0]!, r1 = row[1]!;
-        for (let k = 1, o = n; k <= K; k++, o += n) pc[k] = sign * (0 + r0 * V[o]! + r1 * V[o + 1]!);
-      } else {
-        for (let k = 1; k <= K; k++) {
-          let s = 0;
-          const o = k * n;
-          for (let j = 0; j < nx; j++) s += row[j]! * V[o + j]!;
-          pc[k] = sign * s;
-        }
-      }
+      this.guardTerms(row, K);
       // A polynomial whose derivative keeps one sign on [0, 1] (the slope term outweighs every
       // other term's largest possible slope, k |c_k|) crosses zero at most once there: its
       // value at s = 1 (the scan's last sample, same bits) then decides the piece, and a

@@ -97,19 +97,18 @@ export class Topology {
     this.m = m;
     this.heldInductors = Int32Array.from(held);
     const nx = this.nx, n = this.n;
-    let norm = 0;
+    // infinity norms of A (the state columns) and of the state rows of M (all columns)
+    let norm = 0, normM = 0;
     for (let i = 0; i < nx; i++) {
       let s = 0;
-      for (let j = 0; j < nx; j++) s += Math.abs(m[i * n + j]!);
-      if (s > norm) norm = s;
-    }
-    this.normA = norm;
-    let normM = 0;
-    for (let i = 0; i < nx; i++) {
-      let s = 0;
-      for (let j = 0; j < n; j++) s += Math.abs(m[i * n + j]!);
+      for (let j = 0; j < n; j++) {
+        if (j === nx && s > norm) norm = s;
+        s += Math.abs(m[i * n + j]!);
+      }
+      if (nx === n && s > norm) norm = s;
       if (s > normM) normM = s;
     }
+    this.normA = norm;
     this.normM = normM;
     this.baseStep = norm === 0 ? Infinity : 2 ** Math.floor(Math.log2(1 / norm));
     this.deviceCurrent = circuit.devices.map((d) => this.unknownRow(this.N + d.branch));
