@@ -598,15 +598,17 @@ export class Simulation {
   private applyQueued(): void {
     const count = this.pLen, pend = this.pend;
     const tb = this.tb;
+    const TIMER = KIND_TIMER; // a local: a module constant is reloaded at every use
+    // the queue arrays change only when they grow (below): read once
+    let qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
+    let len = this.qLen;
     for (let p = 0; p < count; p += 4) {
       const kind = pend[p]!, tag = pend[p + 1]!;
       let cyc = pend[p + 2]!, off = pend[p + 3]!;
-      let qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
-      let len = this.qLen;
-      if (kind === KIND_TIMER) {
+      if (kind === TIMER) {
         // drop the pending timer with this tag, shifting the later part down to keep the order
         let i = 0;
-        while (i < len && !(qKind[i] === KIND_TIMER && qTag[i] === tag)) i++;
+        while (i < len && !(qKind[i] === TIMER && qTag[i] === tag)) i++;
         if (i < len) {
           for (i++; i < len; i++) {
             qCyc[i - 1] = qCyc[i]!;
@@ -614,7 +616,7 @@ export class Simulation {
             qKind[i - 1] = qKind[i]!;
             qTag[i - 1] = qTag[i]!;
           }
-          this.qLen = --len;
+          len--;
         }
         if (off !== off) continue; // cancelled
       }
@@ -645,8 +647,9 @@ export class Simulation {
       qOff[j] = off;
       qKind[j] = kind;
       qTag[j] = tag;
-      this.qLen = len + 1;
+      len++;
     }
+    this.qLen = len;
     this.pLen = 0;
   }
 
