@@ -727,7 +727,16 @@ export class Simulation {
       if (!(Number.isInteger(cycle) && offsetS - offsetS === 0 && (cycle - sim.cyc) * sim.tb + (offsetS - sim.off) >= 0)) {
         throw badTimer(tag, cycle, offsetS, sim.timeS);
       }
-      sim.push(cycle, offsetS, KIND_TIMER, tag);
+      // push() written out: a call that is not inlined would box the two doubles, and whether
+      // it is inlined varies from process to process
+      const i = sim.pLen;
+      let p = sim.pend;
+      if (i === p.length) p = sim.pend = grown(p);
+      p[i] = KIND_TIMER;
+      p[i + 1] = tag;
+      p[i + 2] = cycle;
+      p[i + 3] = offsetS;
+      sim.pLen = i + 4;
     }
     after(tag: number, delayS: number): void {
       const sim = this.sim;
