@@ -333,8 +333,9 @@ export class Simulation {
   private readonly splitTmp: Float64Array;
   private readonly locWa: Float64Array;
   private readonly locWb: Float64Array;
-  private readonly locFound: Float64Array;
-  private readonly locBest: Float64Array;
+  /** the state at a located crossing, and at the earliest one of the segment (swapped, not copied) */
+  private locFound: Float64Array;
+  private locBest: Float64Array;
   /** the duration argument of propagate and taylor (a double argument to a call that is not
    * inlined would be boxed on the heap) */
   private readonly hArg = new Float64Array(1);
@@ -1795,10 +1796,17 @@ export class Simulation {
         return;
       }
       if (this.observed) this.observeSegment(t, h);
-      let sum = 0;
-      for (let i = 0; i < nx; i++) sum += w1[i]!;
-      if (!Number.isFinite(sum)) this.checkFinite(w1, t);
-      for (let i = 0; i < nx; i++) w0[i] = w1[i]!;
+      if (nx === 2) {
+        const s0 = w1[0]!, s1 = w1[1]!;
+        if (!Number.isFinite(0 + s0 + s1)) this.checkFinite(w1, t);
+        w0[0] = s0;
+        w0[1] = s1;
+      } else {
+        let sum = 0;
+        for (let i = 0; i < nx; i++) sum += w1[i]!;
+        if (!Number.isFinite(sum)) this.checkFinite(w1, t);
+        for (let i = 0; i < nx; i++) w0[i] = w1[i]!;
+      }
       this.cyc = c1;
       this.off = o1;
       this.instantCount = 1;
@@ -1927,7 +1935,9 @@ export class Simulation {
         if (tau >= 0 && (guardTau < 0 || tau < guardTau)) {
           guardTau = tau;
           guardIdx = gi;
-          for (let j = 0; j < this.n; j++) this.locBest[j] = this.locFound[j]!;
+          const best = this.locBest;
+          this.locBest = this.locFound;
+          this.locFound = best;
         }
       }
     }
@@ -1938,8 +1948,7 @@ export class Simulation {
   /** A guard event inside the segment: advances to it, fires it and switches. */
   private guardInside(t: Topology, gi: number): void {
     const tau = this.screen[9]!;
-    const w0 = this.w, w1 = this.w1;
-    for (let j = 0; j < this.n; j++) w1[j] = this.locBest[j]!;
+    const w0 = this.w, best = this.locBest;
     const prevCyc = this.cyc, prevOff = this.off;
     if (this.observed) this.observeSegment(t, tau);
     this.off += tau;
@@ -1952,8 +1961,13 @@ export class Simulation {
       this.instantCount = 0;
       this.instantGuardCount = 0;
     }
-    this.checkFinite(w1, t);
-    for (let j = 0; j < this.n; j++) w0[j] = w1[j]!;
+    this.checkFinite(best, t);
+    // the states (the inputs are constant over the segment: locate copies them unchanged)
+    const nx = this.nx;
+    if (nx === 2) {
+      w0[0] = best[0]!;
+      w0[1] = best[1]!;
+    } else for (let j = 0; j < nx; j++) w0[j] = best[j]!;
     this.onInstant();
     if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
     this.fireGuard(this.active[gi]!);
