@@ -1024,6 +1024,37 @@ export class Simulation {
       t.taylorH = h;
     }
     const V = this.taylorV;
+    if (n === 4 && nx === 2) {
+      // the smallest stage (two states, two inputs) written out with the matrix in locals: the
+      // same sums in the same order as the loops below
+      const x0 = w0[0]!, x1 = w0[1]!, u0 = w0[2]!, u1 = w0[3]!;
+      const a00 = m[0]!, a01 = m[1]!, a10 = m[4]!, a11 = m[5]!;
+      V[0] = x0;
+      V[1] = x1;
+      V[2] = u0;
+      V[3] = u1;
+      let v0 = (0 + a00 * x0 + a01 * x1 + m[2]! * u0 + m[3]! * u1) * h;
+      let v1 = (0 + a10 * x0 + a11 * x1 + m[6]! * u0 + m[7]! * u1) * h;
+      V[4] = v0;
+      V[5] = v1;
+      let o0 = x0 + v0, o1 = x1 + v1;
+      for (let k = 2, cur = 8; k <= K; k++, cur += 4) {
+        const f = h / k;
+        const s0 = (0 + a00 * v0 + a01 * v1) * f;
+        const s1 = (0 + a10 * v0 + a11 * v1) * f;
+        V[cur] = s0;
+        V[cur + 1] = s1;
+        o0 += s0;
+        o1 += s1;
+        v0 = s0;
+        v1 = s1;
+      }
+      out[0] = o0;
+      out[1] = o1;
+      out[2] = u0;
+      out[3] = u1;
+      return K;
+    }
     for (let j = 0; j < n; j++) {
       V[j] = w0[j]!;
       out[j] = w0[j]!;
