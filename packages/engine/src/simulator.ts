@@ -1259,12 +1259,25 @@ export class Simulation {
     if (startAbove || f0 >= 0 || f1 < 0) return 0;
     const wa = this.locWa, row = g.row, drow = g.drow;
     const E = g.anchorE!;
-    topRows(E, nx, n, w0, wa);
-    for (let j = nx; j < n; j++) wa[j] = w0[j]!;
     let ga = 0, da = 0;
-    for (let j = 0; j < n; j++) {
-      ga += row[j]! * wa[j]!;
-      da += drow[j]! * wa[j]!;
+    if (n === 4 && nx === 2) {
+      // the smallest stage written out (the same sums in the same order as the loops below)
+      const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
+      const b0 = 0 + E[0]! * a0 + E[1]! * a1 + E[2]! * a2 + E[3]! * a3;
+      const b1 = 0 + E[4]! * a0 + E[5]! * a1 + E[6]! * a2 + E[7]! * a3;
+      wa[0] = b0;
+      wa[1] = b1;
+      wa[2] = a2;
+      wa[3] = a3;
+      ga = 0 + row[0]! * b0 + row[1]! * b1 + row[2]! * a2 + row[3]! * a3;
+      da = 0 + drow[0]! * b0 + drow[1]! * b1 + drow[2]! * a2 + drow[3]! * a3;
+    } else {
+      topRows(E, nx, n, w0, wa);
+      for (let j = nx; j < n; j++) wa[j] = w0[j]!;
+      for (let j = 0; j < n; j++) {
+        ga += row[j]! * wa[j]!;
+        da += drow[j]! * wa[j]!;
+      }
     }
     ga *= sign;
     da *= sign;
