@@ -1444,42 +1444,15 @@ export class Simulation {
   // consistent switching
 
   private settle(): void {
-    const c = this.c;
     const w = this.w;
     this.visitedCount = 0;
     for (let iter = 0; ; iter++) {
-      if (iter > this.maxFlips) {
-        throw new SimulationError('inconsistent-switching', `no consistent conduction state found after ${this.maxFlips} device changes at t = ${this.timeS} s (last [${describeKey(c, this.key)}])`, c.devices.map((d) => d.id), this.timeS);
-      }
+      if (iter > this.maxFlips) this.tooManyFlips();
       let t: Topology;
       try {
         t = this.lookupTopology(this.key);
       } catch (err) {
-        // A conducting diode in a zero-resistance loop closed by a switch (an ideal diode
-        // rectifier when the ideal main switch turns on) commutates off at once; if the loop
-        // forward-biases it instead, the flip back is caught as an inconsistent cycle.
-        // A current source whose only path runs through an off diode: the diode the probe
-        // network forward-biases most takes the current, as for an interrupted inductor.
-        if (err instanceof SimulationError && err.code === 'floating-current-source') {
-          const p = this.model.probe(this.key);
-          let best = -1, bestV = this.vTol;
-          for (let d = 0; d < c.devices.length; d++) {
-            const dev = c.devices[d]!;
-            if (dev.kind !== 'diode' || (this.key >>> d) & 1) continue;
-            const v = Simulation.dot(p.deviceVoltage[d]!, w) - c.branches[dev.branch]!.forwardVolts;
-            if (v > bestV) {
-              bestV = v;
-              best = d;
-            }
-          }
-          if (best < 0) throw new SimulationError(err.code, `${err.message} at t = ${this.timeS} s (no diode can take its current)`, err.elements, this.timeS);
-          this.flip(best);
-          continue;
-        }
-        const loop = err instanceof SimulationError && err.code === 'shoot-through' ? err.elements : null;
-        const d = loop === null ? -1 : c.devices.findIndex((dev, i) => dev.kind === 'diode' && ((this.key >>> i) & 1) === 1 && loop.includes(dev.id));
-        if (d < 0) throw err;
-        this.flip(d);
+        this.flip(this.illPosedFlip(err));
         continue;
       }
       // inductors with no path
@@ -1510,16 +1483,7 @@ export class Simulation {
             best = d;
           }
         }
-        if (best < 0) {
-          const ind = c.branches.find((b) => b.stateIndex === interrupted)!;
-          const opened = c.devices.filter((_, d) => (this.turnedOff >>> d) & 1).map((d) => d.id);
-          throw new SimulationError(
-            'no-freewheeling-path',
-            `no freewheeling path: inductor ${ind.id} carries ${w[interrupted]!.toPrecision(6)} A at t = ${this.timeS} s and ${opened.length ? `opening ${opened.join(', ')}` : 'this topology'} leaves it no path (no diode or body diode can take the current)`,
-            [ind.id, ...opened],
-            this.timeS,
-          );
-        }
+        if (best < 0) this.noFreewheelingPath(interrupted);
         this.flip(best);
         continue;
       }
@@ -1548,6 +1512,57 @@ export class Simulation {
       }
       this.flip(worst);
     }
+  }
+
+  /**
+   * The diode to flip when the key is ill-posed (thrown by the topology build), or the error
+   * again. A conducting diode in a zero-resistance loop closed by a switch (an ideal diode
+   * rectifier when the ideal main switch turns on) commutates off at once; if the loop
+   * forward-biases it instead, the flip back is caught as an inconsistent cycle. A current
+   * source whose only path runs through an off diode: the diode the probe network
+   * forward-biases most takes the current, as for an interrupted inductor. (Kept out of
+   * settle(): its closures would make every call of settle allocate a context.)
+   */
+  private illPosedFlip(err: unknown): number {
+    const c = this.c, w = this.w;
+    if (err instanceof SimulationError && err.code === 'floating-current-source') {
+      const p = this.model.probe(this.key);
+      let best = -1, bestV = this.vTol;
+      for (let d = 0; d < c.devices.length; d++) {
+        const dev = c.devices[d]!;
+        if (dev.kind !== 'diode' || (this.key >>> d) & 1) continue;
+        const v = Simulation.dot(p.deviceVoltage[d]!, w) - c.branches[dev.branch]!.forwardVolts;
+        if (v > bestV) {
+          bestV = v;
+          best = d;
+        }
+      }
+      if (best < 0) throw new SimulationError(err.code, `${err.message} at t = ${this.timeS} s (no diode can take its current)`, err.elements, this.timeS);
+      return best;
+    }
+    const loop = err instanceof SimulationError && err.code === 'shoot-through' ? err.elements : null;
+    const d = loop === null ? -1 : c.devices.findIndex((dev, i) => dev.kind === 'diode' && ((this.key >>> i) & 1) === 1 && loop.includes(dev.id));
+    if (d < 0) throw err;
+    return d;
+  }
+
+  private tooManyFlips(): never {
+    const c = this.c;
+    throw new SimulationError('inconsistent-switching', `no consistent conduction state found after ${this.maxFlips} device changes at t = ${this.timeS} s (last [${describeKey(c, this.key)}])`, c.devices.map((d) => d.id), this.timeS);
+  }
+
+  /** The error for an inductor current that no device can carry (its closures live here, not
+   * in settle(), whose every call would otherwise allocate the context they capture). */
+  private noFreewheelingPath(state: number): never {
+    const c = this.c;
+    const ind = c.branches.find((b) => b.stateIndex === state)!;
+    const opened = c.devices.filter((_, d) => (this.turnedOff >>> d) & 1).map((d) => d.id);
+    throw new SimulationError(
+      'no-freewheeling-path',
+      `no freewheeling path: inductor ${ind.id} carries ${this.w[state]!.toPrecision(6)} A at t = ${this.timeS} s and ${opened.length ? `opening ${opened.join(', ')}` : 'this topology'} leaves it no path (no diode or body diode can take the current)`,
+      [ind.id, ...opened],
+      this.timeS,
+    );
   }
 
   private flip(d: number): void {
@@ -2118,15 +2133,19 @@ export class Simulation {
   private checkFinite(w: Float64Array, t: Topology): void {
     let s = 0;
     for (let i = 0; i < this.nx; i++) s += w[i]!;
-    if (!Number.isFinite(s)) {
-      const bad = this.c.stateNames.filter((_, i) => !Number.isFinite(w[i]!));
-      throw new SimulationError(
-        'non-finite',
-        `non-finite state (${bad.join(', ')}) after a segment in topology [${describeKey(this.c, t.key)}] ending at t = ${this.timeS} s`,
-        bad,
-        this.timeS,
-      );
-    }
+    if (!Number.isFinite(s)) this.nonFinite(w, t);
+  }
+
+  /** The error for a non-finite state (a closure captures w: kept out of checkFinite, whose
+   * every call would otherwise allocate the context for it). */
+  private nonFinite(w: Float64Array, t: Topology): never {
+    const bad = this.c.stateNames.filter((_, i) => !Number.isFinite(w[i]!));
+    throw new SimulationError(
+      'non-finite',
+      `non-finite state (${bad.join(', ')}) after a segment in topology [${describeKey(this.c, t.key)}] ending at t = ${this.timeS} s`,
+      bad,
+      this.timeS,
+    );
   }
 
   /** Runs to the end and returns the result. */
