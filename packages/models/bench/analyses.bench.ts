@@ -2,7 +2,7 @@
  * Benchmark (not a test): prints measured ratios, side by side.
  * 1. Periodic steady state of a lightly damped (high-Q) buck: shooting versus a brute-force
  *    transient run until its state is within 1e-9 (relative) of the orbit; periods simulated and
- *    wall time of each, and their ratios. Both sides run interleaved, JIT warm, best of 5; once
+ *    wall time of each, and their ratios. Both sides run interleaved, JIT warm, best of 20; once
  *    with each side compiling the circuit itself (a one-off analysis: the engine's compilation
  *    and topology set-up, ~0.5-1 ms, is then a floor under shooting's time) and once with one
  *    compiled model shared by both (what a sweep or a repeated analysis pays).
@@ -59,7 +59,7 @@ for (const [label, model] of [['compiling the circuit in each run', null], ['wit
   let shootMs = Infinity, bruteMs = Infinity;
   let ss!: SteadyState;
   let bruteP = 0;
-  for (let round = 0; round < 6; round++) {
+  for (let round = 0; round < 21; round++) {
     let t0 = performance.now();
     ss = shooting(model ?? new CircuitModel(base.circuit));
     if (round > 0) shootMs = Math.min(shootMs, performance.now() - t0);
