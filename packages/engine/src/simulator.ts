@@ -1024,59 +1024,46 @@ export class Simulation {
       t.taylorH = h;
     }
     const V = this.taylorV;
+    // two states (the common small stage): the terms beyond the first written out below with
+    // the matrix in locals; with two inputs the first term too. The same sums in the same order
+    // as the general loop.
+    let K2 = nx === 2 ? 1 : K;
     if (n === 4 && nx === 2) {
-      // the smallest stage (two states, two inputs) written out with the matrix in locals: the
-      // same sums in the same order as the loops below
       const x0 = w0[0]!, x1 = w0[1]!, u0 = w0[2]!, u1 = w0[3]!;
-      const a00 = m[0]!, a01 = m[1]!, a10 = m[4]!, a11 = m[5]!;
       V[0] = x0;
       V[1] = x1;
       V[2] = u0;
       V[3] = u1;
-      let v0 = (0 + a00 * x0 + a01 * x1 + m[2]! * u0 + m[3]! * u1) * h;
-      let v1 = (0 + a10 * x0 + a11 * x1 + m[6]! * u0 + m[7]! * u1) * h;
+      const v0 = (0 + m[0]! * x0 + m[1]! * x1 + m[2]! * u0 + m[3]! * u1) * h;
+      const v1 = (0 + m[4]! * x0 + m[5]! * x1 + m[6]! * u0 + m[7]! * u1) * h;
       V[4] = v0;
       V[5] = v1;
-      let o0 = x0 + v0, o1 = x1 + v1;
-      for (let k = 2, cur = 8; k <= K; k++, cur += 4) {
-        const f = h / k;
-        const s0 = (0 + a00 * v0 + a01 * v1) * f;
-        const s1 = (0 + a10 * v0 + a11 * v1) * f;
-        V[cur] = s0;
-        V[cur + 1] = s1;
-        o0 += s0;
-        o1 += s1;
-        v0 = s0;
-        v1 = s1;
-      }
-      out[0] = o0;
-      out[1] = o1;
+      out[0] = x0 + v0;
+      out[1] = x1 + v1;
       out[2] = u0;
       out[3] = u1;
-      return K;
-    }
-    for (let j = 0; j < n; j++) {
-      V[j] = w0[j]!;
-      out[j] = w0[j]!;
-    }
-    // two states (the common small stage): the terms beyond the first written out with the
-    // matrix in locals, the same sums in the same order as the loop below
-    const K2 = nx === 2 ? 1 : K;
-    for (let k = 1; k <= K2; k++) {
-      const prev = (k - 1) * n;
-      const cur = k * n;
-      const f = h / k;
-      for (let i = 0; i < nx; i++) {
-        let s = 0;
-        const o = i * n;
-        // after the first product only the x part of the previous term is non-zero
-        const lim = k === 1 ? n : nx;
-        for (let j = 0; j < lim; j++) s += m[o + j]! * V[prev + j]!;
-        s *= f;
-        V[cur + i] = s;
-        out[i]! += s;
+      K2 = 1;
+    } else {
+      for (let j = 0; j < n; j++) {
+        V[j] = w0[j]!;
+        out[j] = w0[j]!;
       }
-      // V[cur + j] for j >= nx stays 0 from the allocation: inputs are constant
+      for (let k = 1; k <= K2; k++) {
+        const prev = (k - 1) * n;
+        const cur = k * n;
+        const f = h / k;
+        for (let i = 0; i < nx; i++) {
+          let s = 0;
+          const o = i * n;
+          // after the first product only the x part of the previous term is non-zero
+          const lim = k === 1 ? n : nx;
+          for (let j = 0; j < lim; j++) s += m[o + j]! * V[prev + j]!;
+          s *= f;
+          V[cur + i] = s;
+          out[i]! += s;
+        }
+        // V[cur + j] for j >= nx stays 0 from the allocation: inputs are constant
+      }
     }
     if (K2 < K) {
       const a00 = m[0]!, a01 = m[1]!, a10 = m[n]!, a11 = m[n + 1]!;
