@@ -1190,7 +1190,7 @@ export class Simulation {
   private locate(t: Topology, g: ActiveGuard, w0: Float64Array, startAbove: boolean): boolean {
     const sc = this.screen;
     let r = -1;
-    if (g.anchorE !== null && sc[7] === sc[5]) r = this.locateAnchored(t, g, w0, startAbove);
+    if (g.anchorE !== null && sc[7] === sc[5] && this.useCache) r = this.locateAnchored(t, g, w0, startAbove);
     if (r === 0) return false;
     if (r < 0 && !this.locateScan(t, g, w0, startAbove)) return false;
     // Anchor the next locations of this guard at this crossing once it has settled (the last
