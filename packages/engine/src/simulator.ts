@@ -389,6 +389,11 @@ export class Simulation {
   private readonly recordEvents: boolean;
   /** a trace, integrals or a grid watch the segments */
   private readonly observed: boolean;
+  /** two states and two inputs, cached propagators, no observers: the commonest segment is
+   * written out in advance() */
+  private readonly smallPlain: boolean;
+  /** no diodes, a dense topology table, no observers and no sink: switching is a lookup */
+  private readonly plainSwitching: boolean;
   private readonly gridS: number;
   private readonly recordFrom: number;
   private gridIndex = 0;
@@ -483,6 +488,8 @@ export class Simulation {
     this.intValues = new Float64Array(this.intRefs.length);
     this.stepTimes = c.sourceSteps.slice();
     this.observed = options.trace !== undefined || this.intRefs.length !== 0 || this.gridS > 0;
+    this.smallPlain = this.n === 4 && this.nx === 2 && !this.observed && this.useCache;
+    this.plainSwitching = this.diodeCount === 0 && this.topoTable !== null && !this.observed && !this.recordEvents;
     this.ctrl = options.controller;
     this.ctx = this.makeContext();
 
@@ -1790,7 +1797,7 @@ export class Simulation {
     const w1 = this.w1;
     const nx = this.nx, n = this.n;
     const counters = this.counters;
-    if (h > 0 && n === 4 && nx === 2 && t.lastH === h && this.active.length === 0 && !this.observed && this.useCache) {
+    if (h > 0 && this.smallPlain && t.lastH === h && this.active.length === 0) {
       // The commonest segment of the smallest stage (cached propagator, nothing to screen or
       // observe) written out into the state itself; the same sums in the same order as below.
       const E = t.lastE!;
@@ -1883,9 +1890,8 @@ export class Simulation {
     }
     // switching: without diodes, a table lookup unless the new topology holds an inductor
     const key = this.key;
-    const table = this.topoTable;
-    if (this.diodeCount === 0 && table !== null && !this.observed && !this.recordEvents) {
-      const nt = key === before ? t : table[key] ?? this.lookupTopology(key);
+    if (this.plainSwitching) {
+      const nt = key === before ? t : this.topoTable![key] ?? this.lookupTopology(key);
       if (nt.heldInductors.length !== 0) this.settleAndSwitch(before);
       else {
         this.turnedOff = 0;
