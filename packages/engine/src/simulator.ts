@@ -414,8 +414,6 @@ export class Simulation {
   /** topology keys met in one consistent-switching step (reused: settle runs at every event) */
   private visited = new Int32Array(8);
   private visitedCount = 0;
-  /** the topology settle() ended in */
-  private settled: Topology | undefined = undefined;
   private readonly stepTimes: { atS: number; input: number; value: number }[];
 
   constructor(model: CircuitModel | CircuitSpec, options: RunOptions) {
@@ -508,8 +506,7 @@ export class Simulation {
         this.ctrl.start(this.ctx);
         this.inStart = false;
       }
-      this.settle();
-      this.topo = this.model.topology(this.key);
+      this.topo = this.settle();
       this.counters.topologies = this.model.topologyCount;
       if (this.recordEvents && this.inRecordWindow(0)) this.emit(SampleKind.After);
       if (this.gridS > 0) this.gridIndex = Math.max(0, Math.ceil(this.recordFrom / this.gridS - 1e-12));
@@ -1437,7 +1434,9 @@ export class Simulation {
   // ----------------------------------------------------------------------------------------
   // consistent switching
 
-  private settle(): void {
+  /** Consistent switching from the current key: flips diodes until every device agrees with the
+   * state, and returns the topology it ends in. */
+  private settle(): Topology {
     const w = this.w;
     this.visitedCount = 0;
     for (let iter = 0; ; iter++) {
@@ -1451,10 +1450,7 @@ export class Simulation {
       }
       // inductors with no path
       const held = t.heldInductors;
-      if (held.length === 0 && this.diodeCount === 0) {
-        this.settled = t;
-        return;
-      }
+      if (held.length === 0 && this.diodeCount === 0) return t;
       let interrupted = -1;
       for (let i = 0; i < held.length; i++) {
         const s = held[i]!;
@@ -1500,10 +1496,7 @@ export class Simulation {
           }
         }
       }
-      if (worst < 0) {
-        this.settled = t;
-        return;
-      }
+      if (worst < 0) return t;
       this.flip(worst);
     }
   }
@@ -1895,12 +1888,7 @@ export class Simulation {
       if (nt.heldInductors.length !== 0) this.settleAndSwitch(before);
       else {
         this.turnedOff = 0;
-        if (nt !== t) {
-          this.topo = nt;
-          const dense = this.activeDense!;
-          if (this.activeDenseArm[key] === this.armKey) this.active = dense[key]!;
-          else this.activeDirty = true;
-        }
+        if (nt !== t) this.enter(nt);
       }
     } else this.settleAndSwitch(before);
     if (this.stopRequest !== null) this.finish('stopped', this.stopRequest);
@@ -1978,7 +1966,6 @@ export class Simulation {
         sc[2] = sd0;
         sc[3] = sign * d1;
         sc[4] = e4;
-        sc[5] = h;
         if (!Simulation.maybeRising(sc)) continue;
         // sign and limit go in the scratch too, and tau comes back in it (no boxed doubles)
         sc[6] = sign;
@@ -2103,19 +2090,21 @@ export class Simulation {
     // diode): look it up only after settle() has resolved the diodes.
     let t: Topology | undefined = this.key === this.topo.key ? this.topo : undefined;
     if (this.diodeCount !== 0 || (t ??= this.lookupTopology(this.key)).heldInductors.length !== 0) {
-      this.settle();
-      t = this.settled!;
+      t = this.settle();
     }
     this.turnedOff = 0;
-    if (t !== this.topo) {
-      this.topo = t;
-      // the active guard list of the new topology, when cached for the armed set
-      const dense = this.activeDense;
-      if (dense !== null && this.activeDenseArm[t.key] === this.armKey) this.active = dense[t.key]!;
-      else this.activeDirty = true;
-    }
+    if (t !== this.topo) this.enter(t);
     if (this.key !== before) this.options.trace?.switched?.(this.timeS, before, this.key, this.w);
     if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.After);
+  }
+
+  /** Makes t the topology in force, with its active guard list when one is cached for the armed
+   * set (else rebuilt before the next segment). */
+  private enter(t: Topology): void {
+    this.topo = t;
+    const dense = this.activeDense;
+    if (dense !== null && this.activeDenseArm[t.key] === this.armKey) this.active = dense[t.key]!;
+    else this.activeDirty = true;
   }
 
   private afterEvents(before: number): void {

@@ -100,13 +100,11 @@ export class Topology {
     // infinity norms of A (the state columns) and of the state rows of M (all columns)
     let norm = 0, normM = 0;
     for (let i = 0; i < nx; i++) {
-      let s = 0;
-      for (let j = 0; j < n; j++) {
-        if (j === nx && s > norm) norm = s;
-        s += Math.abs(m[i * n + j]!);
-      }
-      if (nx === n && s > norm) norm = s;
-      if (s > normM) normM = s;
+      let sa = 0, sb = 0;
+      for (let j = 0; j < nx; j++) sa += Math.abs(m[i * n + j]!);
+      for (let j = nx; j < n; j++) sb += Math.abs(m[i * n + j]!);
+      norm = Math.max(norm, sa);
+      normM = Math.max(normM, sa + sb);
     }
     this.normA = norm;
     this.normM = normM;
