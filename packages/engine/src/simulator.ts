@@ -1276,13 +1276,47 @@ export class Simulation {
     // twice the Newton step from the anchor spans the polynomial: the root is near s = 1/2
     const span = (-2 * ga) / da;
     if (!(Math.abs(span) * t.normA <= 0.25) || span === 0) return -1;
-    this.hArg[0] = span;
-    const K = this.taylor(t, wa, this.locWb);
     const V = this.taylorV, pc = this.polyC;
     // p(s) = sum pc_k s^k: the first term is the guard at the anchor; beyond it only the
     // states are non-zero
     pc[0] = ga;
-    this.guardTerms(row, K);
+    let K: number;
+    if (n === 4 && nx === 2) {
+      // the Taylor vectors and the guard's terms in one pass, the matrix and the last vector in
+      // locals (the same sums in the same order as taylor() and guardTerms(): the same bits)
+      K = t.taylorK;
+      if (t.taylorH !== span) {
+        K = t.taylorK = taylorOrder(t.normA * span);
+        t.taylorH = span;
+      }
+      const m = t.m;
+      const r0 = row[0]!, r1 = row[1]!;
+      const x0 = wa[0]!, x1 = wa[1]!, u0 = wa[2]!, u1 = wa[3]!;
+      V[0] = x0;
+      V[1] = x1;
+      V[2] = u0;
+      V[3] = u1;
+      let v0 = (0 + m[0]! * x0 + m[1]! * x1 + m[2]! * u0 + m[3]! * u1) * span;
+      let v1 = (0 + m[4]! * x0 + m[5]! * x1 + m[6]! * u0 + m[7]! * u1) * span;
+      V[4] = v0;
+      V[5] = v1;
+      pc[1] = sign * (0 + r0 * v0 + r1 * v1);
+      const a00 = m[0]!, a01 = m[1]!, a10 = m[4]!, a11 = m[5]!;
+      for (let k = 2, cur = 8; k <= K; k++, cur += 4) {
+        const f = span / k;
+        const s0 = (0 + a00 * v0 + a01 * v1) * f;
+        const s1 = (0 + a10 * v0 + a11 * v1) * f;
+        V[cur] = s0;
+        V[cur + 1] = s1;
+        pc[k] = sign * (0 + r0 * s0 + r1 * s1);
+        v0 = s0;
+        v1 = s1;
+      }
+    } else {
+      this.hArg[0] = span;
+      K = this.taylor(t, wa, this.locWb);
+      this.guardTerms(row, K);
+    }
     // Newton from s = 1/2 (increasing in s when span > 0, decreasing when the root lies before
     // the anchor). The step is a fraction normA |span| <= 1/4 of the polynomial's curvature
     // scale, so once a step is below 1e-9 the next one would be below 1e-18: converged.
