@@ -1950,7 +1950,12 @@ export class Simulation {
       const a = Math.abs(w0[j]!);
       if (a > wmax) wmax = a;
     }
-    const grow = Math.exp(t.normM * h) * wmax * (1 + 1e-9);
+    // exp(normM h) kept on the topology: fixed-frequency segments repeat their length
+    if (t.growH !== h) {
+      t.grow = Math.exp(t.normM * h);
+      t.growH = h;
+    }
+    const grow = t.grow * wmax * (1 + 1e-9);
     const reach = h * grow;
     sc[10] = grow;
     for (let gi = 0; gi < act.length; gi++) {
@@ -1994,7 +1999,11 @@ export class Simulation {
         const sd0 = sign * d0;
         // a guard that has just fired sits at zero within the rounding of its own dot product:
         // count it as already crossed when it moves upward
-        const startAbove = sf0 > 0 || (sf0 === 0 && sd0 >= 0) || (sd0 > 0 && Math.abs(sf0) <= 8e-16 * Simulation.dotScale(g.row, w0));
+        // (sum |r_j w_j| <= |row|_1 ||w0||_inf: the scale's loop only when the bound allows)
+        const startAbove =
+          sf0 > 0 ||
+          (sf0 === 0 && sd0 >= 0) ||
+          (sd0 > 0 && Math.abs(sf0) <= 8.001e-16 * g.rnorm * wmax && Math.abs(sf0) <= 8e-16 * Simulation.dotScale(g.row, w0));
         sc[0] = startAbove ? Math.max(sf0, 0) : sf0;
         sc[1] = sign * f1;
         sc[2] = sd0;

@@ -77,6 +77,9 @@ export class Topology {
   /** the duration of the last Taylor series taken in this topology and its order (simulator) */
   taylorH = Number.NaN;
   taylorK = 0;
+  /** the duration of the guard screen's last growth bound in this topology and exp(normM h) (simulator) */
+  growH = Number.NaN;
+  grow = 1;
   lastE: Float64Array | null = null;
   /** cached E(k * baseStep) by k */
   readonly multiples = new Map<number, Float64Array>();
