@@ -214,6 +214,20 @@ function topRows(E: Float64Array, nx: number, n: number, w: Float64Array, out: F
   }
 }
 
+/** Float64 views carved in order from one zeroed buffer of the given size in bytes. */
+class Arena {
+  private readonly buf: ArrayBuffer;
+  private at = 0;
+  constructor(bytes: number) {
+    this.buf = new ArrayBuffer(bytes);
+  }
+  f64(length: number): Float64Array {
+    const a = new Float64Array(this.buf, this.at, length);
+    this.at += 8 * length;
+    return a;
+  }
+}
+
 /** A copy of a typed array with twice the length (the event queue grows rarely). */
 function grown<T extends Float64Array | Int32Array>(a: T): T {
   const b = new (a.constructor as new (n: number) => T)(a.length * 2);
@@ -328,7 +342,7 @@ export class Simulation {
   private readonly w1: Float64Array;
   private readonly wtmp: Float64Array;
   private readonly taylorV: Float64Array;
-  private readonly polyC = new Float64Array(TAYLOR_MAX + 1);
+  private readonly polyC: Float64Array;
   /** scratch of splitAt (its callers may pass wtmp as the output) */
   private readonly splitTmp: Float64Array;
   private readonly locWa: Float64Array;
@@ -338,11 +352,11 @@ export class Simulation {
   private locBest: Float64Array;
   /** the duration argument of propagate and taylor (a double argument to a call that is not
    * inlined would be boxed on the heap) */
-  private readonly hArg = new Float64Array(1);
+  private readonly hArg: Float64Array;
   /** arguments of maybeRising (0-5) and of locate (6, 7), the time locate found (8), the
    * time of the earliest guard crossing in the segment (9), and the bound exp(normM h)
    * ||w0||_inf of the state over the segment (10) */
-  private readonly screen = new Float64Array(11);
+  private readonly screen: Float64Array;
   // settings
   private readonly iTol: number;
   private readonly vTol: number;
@@ -351,13 +365,13 @@ export class Simulation {
   private readonly useCache: boolean;
   private readonly maxCached: number;
   // event queue (small), sorted latest first: the next event is at qLen - 1
-  private qCyc = new Float64Array(16);
-  private qOff = new Float64Array(16);
+  private qCyc: Float64Array;
+  private qOff: Float64Array;
   private qKind = new Int32Array(16);
-  private qTag = new Float64Array(16);
+  private qTag: Float64Array;
   private qLen = 0;
   /** queue changes recorded, not yet applied (see push): kind, tag, cycle, offset */
-  private pend = new Float64Array(32);
+  private pend: Float64Array;
   private pLen = 0;
   // gates
   private readonly gateMask: Int32Array;
@@ -439,14 +453,26 @@ export class Simulation {
     this.useCache = s.cachePropagators ?? true;
     this.maxCached = s.maxCachedDurations ?? 256;
     this.w = new Float64Array(c.initialState);
-    this.w1 = new Float64Array(n);
-    this.wtmp = new Float64Array(n);
-    this.taylorV = new Float64Array((TAYLOR_MAX + 1) * n);
-    this.splitTmp = new Float64Array(n);
-    this.locWa = new Float64Array(n);
-    this.locWb = new Float64Array(n);
-    this.locFound = new Float64Array(n);
-    this.locBest = new Float64Array(n);
+    // The run's scratch arrays are views of one buffer: a typed array over 64 bytes gets its own
+    // off-heap store, about 1-2 us each, which was most of the set-up of a short run.
+    const dense = c.devices.length <= 16;
+    const arena = new Arena(8 * (TAYLOR_MAX + 1 + 1 + 11 + 3 * 16 + 32 + (7 + TAYLOR_MAX + 1) * n + (dense ? 1 << c.devices.length : 0)));
+    this.polyC = arena.f64(TAYLOR_MAX + 1);
+    this.hArg = arena.f64(1);
+    this.screen = arena.f64(11);
+    this.qCyc = arena.f64(16);
+    this.qOff = arena.f64(16);
+    this.qTag = arena.f64(16);
+    this.pend = arena.f64(32);
+    this.w1 = arena.f64(n);
+    this.wtmp = arena.f64(n);
+    this.taylorV = arena.f64((TAYLOR_MAX + 1) * n);
+    this.splitTmp = arena.f64(n);
+    this.locWa = arena.f64(n);
+    this.locWb = arena.f64(n);
+    this.locFound = arena.f64(n);
+    this.locBest = arena.f64(n);
+    this.activeDenseArm = arena.f64(dense ? 1 << c.devices.length : 0).fill(-1);
     if (options.initialState !== undefined) this.applyInitial(options.initialState);
 
     this.gateMask = new Int32Array(c.gates.length);
@@ -470,7 +496,6 @@ export class Simulation {
     }
     this.topoTable = c.devices.length <= 16 ? new Array<Topology | undefined>(1 << c.devices.length).fill(undefined) : null;
     this.activeDense = c.devices.length <= 16 ? new Array<ActiveGuard[] | undefined>(1 << c.devices.length).fill(undefined) : null;
-    this.activeDenseArm = new Float64Array(this.activeDense === null ? 0 : 1 << c.devices.length).fill(-1);
 
     const rec = options.record ?? [];
     this.recRefs = rec.map((name) => this.resolveOrThrow(name, 'record'));
