@@ -392,6 +392,8 @@ export class Simulation {
   private guardTag: Float64Array = new Float64Array(0);
   private active: ActiveGuard[] = [];
   private activeDirty = true;
+  /** no diodes and no controller guards (known after start): no topology has an active guard */
+  private guardless = false;
   /** bit set of armed controller guards (guards beyond 30 fall back to a version counter) */
   private armKey = 0;
   private readonly activeCache = new Map<number, Map<number, ActiveGuard[]>>();
@@ -531,6 +533,7 @@ export class Simulation {
         this.ctrl.start(this.ctx);
         this.inStart = false;
       }
+      this.guardless = this.diodeCount === 0 && this.guardRefs.length === 0;
       this.topo = this.settle();
       this.counters.topologies = this.model.topologyCount;
       if (this.recordEvents && this.inRecordWindow(0)) this.emit(SampleKind.After);
@@ -2170,6 +2173,7 @@ export class Simulation {
    * set (else rebuilt before the next segment). */
   private enter(t: Topology): void {
     this.topo = t;
+    if (this.guardless) return; // the active list stays the empty one
     const dense = this.activeDense;
     if (dense !== null && this.activeDenseArm[t.key] === this.armKey) this.active = dense[t.key]!;
     else this.activeDirty = true;
