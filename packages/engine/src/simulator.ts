@@ -405,8 +405,8 @@ export class Simulation {
   private readonly recordEvents: boolean;
   /** a trace, integrals or a grid watch the segments */
   private readonly observed: boolean;
-  /** two states and two inputs, cached propagators, no observers: the commonest segment is
-   * written out in advance() */
+  /** two or four states and two inputs, cached propagators, no observers: the commonest
+   * segment is written out in advance() */
   private readonly smallPlain: boolean;
   /** no diodes, a dense topology table, no observers and no sink: switching is a lookup */
   private readonly plainSwitching: boolean;
@@ -513,7 +513,7 @@ export class Simulation {
     this.intValues = new Float64Array(this.intRefs.length);
     this.stepTimes = c.sourceSteps.slice();
     this.observed = options.trace !== undefined || this.intRefs.length !== 0 || this.gridS > 0;
-    this.smallPlain = this.n === 4 && this.nx === 2 && !this.observed && this.useCache;
+    this.smallPlain = ((this.n === 4 && this.nx === 2) || (this.n === 6 && this.nx === 4)) && !this.observed && this.useCache;
     this.plainSwitching = this.diodeCount === 0 && this.topoTable !== null && !this.observed && !this.recordEvents;
     this.ctrl = options.controller;
     this.ctx = this.makeContext();
@@ -1853,19 +1853,39 @@ export class Simulation {
     const nx = this.nx, n = this.n;
     const counters = this.counters;
     if (h > 0 && this.smallPlain && t.lastH === h && this.active.length === 0) {
-      // The commonest segment of the smallest stage (cached propagator, nothing to screen or
-      // observe) written out into the state itself; the same sums in the same order as below.
+      // The commonest segment of the small stages (cached propagator, nothing to screen or
+      // observe) written out into the state itself, for two states and two inputs and for four
+      // states and two inputs; the same sums in the same order as topRows() below.
       const E = t.lastE!;
-      const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
-      const s0 = 0 + E[0]! * a0 + E[1]! * a1 + E[2]! * a2 + E[3]! * a3;
-      const s1 = 0 + E[4]! * a0 + E[5]! * a1 + E[6]! * a2 + E[7]! * a3;
-      if (!Number.isFinite(0 + s0 + s1)) {
-        w1[0] = s0;
-        w1[1] = s1;
-        this.checkFinite(w1, t);
+      if (n === 4) {
+        const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
+        const s0 = 0 + E[0]! * a0 + E[1]! * a1 + E[2]! * a2 + E[3]! * a3;
+        const s1 = 0 + E[4]! * a0 + E[5]! * a1 + E[6]! * a2 + E[7]! * a3;
+        if (!Number.isFinite(0 + s0 + s1)) {
+          w1[0] = s0;
+          w1[1] = s1;
+          this.checkFinite(w1, t);
+        }
+        w0[0] = s0;
+        w0[1] = s1;
+      } else {
+        const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!, a4 = w0[4]!, a5 = w0[5]!;
+        const s0 = 0 + E[0]! * a0 + E[1]! * a1 + E[2]! * a2 + E[3]! * a3 + E[4]! * a4 + E[5]! * a5;
+        const s1 = 0 + E[6]! * a0 + E[7]! * a1 + E[8]! * a2 + E[9]! * a3 + E[10]! * a4 + E[11]! * a5;
+        const s2 = 0 + E[12]! * a0 + E[13]! * a1 + E[14]! * a2 + E[15]! * a3 + E[16]! * a4 + E[17]! * a5;
+        const s3 = 0 + E[18]! * a0 + E[19]! * a1 + E[20]! * a2 + E[21]! * a3 + E[22]! * a4 + E[23]! * a5;
+        if (!Number.isFinite(0 + s0 + s1 + s2 + s3)) {
+          w1[0] = s0;
+          w1[1] = s1;
+          w1[2] = s2;
+          w1[3] = s3;
+          this.checkFinite(w1, t);
+        }
+        w0[0] = s0;
+        w0[1] = s1;
+        w0[2] = s2;
+        w0[3] = s3;
       }
-      w0[0] = s0;
-      w0[1] = s1;
       counters.propagatorCacheHits++;
       counters.segments++;
       this.cyc = c1;
