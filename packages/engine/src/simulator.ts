@@ -1381,7 +1381,10 @@ export class Simulation {
         out[j] = v;
       }
     }
-    for (let j = nx; j < n; j++) out[j] = w0[j]!;
+    if (n === 4 && nx === 2) {
+      out[2] = w0[2]!;
+      out[3] = w0[3]!;
+    } else for (let j = nx; j < n; j++) out[j] = w0[j]!;
     sc[8] = tau;
     this.counters.anchoredLocations++;
     return 1;
@@ -2091,13 +2094,17 @@ export class Simulation {
       this.instantCount = 0;
       this.instantGuardCount = 0;
     }
-    this.checkFinite(best, t);
     // the states (the inputs are constant over the segment: locate copies them unchanged)
     const nx = this.nx;
     if (nx === 2) {
-      w0[0] = best[0]!;
-      w0[1] = best[1]!;
-    } else for (let j = 0; j < nx; j++) w0[j] = best[j]!;
+      const b0 = best[0]!, b1 = best[1]!;
+      if (!Number.isFinite(0 + b0 + b1)) this.checkFinite(best, t);
+      w0[0] = b0;
+      w0[1] = b1;
+    } else {
+      this.checkFinite(best, t);
+      for (let j = 0; j < nx; j++) w0[j] = best[j]!;
+    }
     this.onInstant();
     if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.Before);
     this.fireGuard(this.active[gi]!);
