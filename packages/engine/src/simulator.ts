@@ -408,6 +408,8 @@ export class Simulation {
   /** two or four states and two inputs, cached propagators, no observers: the commonest
    * segment is written out in advance() */
   private readonly smallPlain: boolean;
+  /** a trace of switching or recorded event points */
+  private readonly switchWatched: boolean;
   /** no diodes, a dense topology table, no observers and no sink: switching is a lookup */
   private readonly plainSwitching: boolean;
   private readonly gridS: number;
@@ -514,6 +516,7 @@ export class Simulation {
     this.stepTimes = c.sourceSteps.slice();
     this.observed = options.trace !== undefined || this.intRefs.length !== 0 || this.gridS > 0;
     this.smallPlain = ((this.n === 4 && this.nx === 2) || (this.n === 6 && this.nx === 4)) && !this.observed && this.useCache;
+    this.switchWatched = options.trace?.switched !== undefined || this.recordEvents;
     this.plainSwitching = this.diodeCount === 0 && this.topoTable !== null && !this.observed && !this.recordEvents;
     this.ctrl = options.controller;
     this.ctx = this.makeContext();
@@ -2192,6 +2195,12 @@ export class Simulation {
     }
     this.turnedOff = 0;
     if (t !== this.topo) this.enter(t);
+    // (the observers' part in its own method keeps this one small enough to be inlined into
+    // advance() next to the controller's calls)
+    if (this.switchWatched) this.switchObserved(before);
+  }
+
+  private switchObserved(before: number): void {
     if (this.key !== before) this.options.trace?.switched?.(this.timeS, before, this.key, this.w);
     if (this.recordEvents && this.inRecordWindow(this.timeS)) this.emit(SampleKind.After);
   }
