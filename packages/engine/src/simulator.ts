@@ -1307,47 +1307,69 @@ export class Simulation {
     // twice the Newton step from the anchor spans the polynomial: the root is near s = 1/2
     const span = (-2 * ga) / da;
     if (!(Math.abs(span) * t.normA <= 0.25) || span === 0) return -1;
-    const V = this.taylorV, pc = this.polyC;
-    // p(s) = sum pc_k s^k: the first term is the guard at the anchor; beyond it only the
-    // states are non-zero
-    pc[0] = ga;
-    let K: number;
     if (n === 4 && nx === 2) {
-      // the Taylor vectors and the guard's terms in one pass, the matrix and the last vector in
-      // locals (the same sums in the same order as taylor() and guardTerms(): the same bits)
-      K = t.taylorK;
+      // Two states: Newton on the Taylor polynomial of the guard about the anchor, each trial
+      // x evaluated by running the series at x span in registers (the state w(x) and, from
+      // it, p(x) = row . w(x) and p'(x) = span drow . w(x)), so that no term is stored; the
+      // last step, below 1e-9 of x, moves the state by its first-order term (the second is
+      // below 1e-19 of it).
+      let K = t.taylorK;
       if (t.taylorH !== span) {
         K = t.taylorK = taylorOrder(t.normA * span);
         t.taylorH = span;
       }
       const m = t.m;
-      const r0 = row[0]!, r1 = row[1]!;
-      const x0 = wa[0]!, x1 = wa[1]!, u0 = wa[2]!, u1 = wa[3]!;
-      V[0] = x0;
-      V[1] = x1;
-      V[2] = u0;
-      V[3] = u1;
-      let v0 = (0 + m[0]! * x0 + m[1]! * x1 + m[2]! * u0 + m[3]! * u1) * span;
-      let v1 = (0 + m[4]! * x0 + m[5]! * x1 + m[6]! * u0 + m[7]! * u1) * span;
-      V[4] = v0;
-      V[5] = v1;
-      pc[1] = sign * (0 + r0 * v0 + r1 * v1);
       const a00 = m[0]!, a01 = m[1]!, a10 = m[4]!, a11 = m[5]!;
-      for (let k = 2, cur = 8; k <= K; k++, cur += 4) {
-        const f = span / k;
-        const s0 = (0 + a00 * v0 + a01 * v1) * f;
-        const s1 = (0 + a10 * v0 + a11 * v1) * f;
-        V[cur] = s0;
-        V[cur + 1] = s1;
-        pc[k] = sign * (0 + r0 * s0 + r1 * s1);
-        v0 = s0;
-        v1 = s1;
+      const x0 = wa[0]!, x1 = wa[1]!, u0 = wa[2]!, u1 = wa[3]!;
+      const mw0 = 0 + a00 * x0 + a01 * x1 + m[2]! * u0 + m[3]! * u1;
+      const mw1 = 0 + a10 * x0 + a11 * x1 + m[6]! * u0 + m[7]! * u1;
+      const r0 = row[0]!, r1 = row[1]!, r2 = row[2]!, r3 = row[3]!;
+      const p0 = drow[0]!, p1 = drow[1]!, p2 = drow[2]!, p3 = drow[3]!;
+      let x = 0.5;
+      for (let it = 0; it < 8; it++) {
+        const hs = x * span;
+        let v0 = mw0 * hs, v1 = mw1 * hs;
+        let y0 = x0 + v0, y1 = x1 + v1;
+        for (let k = 2; k <= K; k++) {
+          const f = hs / k;
+          const s0 = (0 + a00 * v0 + a01 * v1) * f;
+          const s1 = (0 + a10 * v0 + a11 * v1) * f;
+          y0 += s0;
+          y1 += s1;
+          v0 = s0;
+          v1 = s1;
+        }
+        const px = sign * (0 + r0 * y0 + r1 * y1 + r2 * u0 + r3 * u1);
+        const dpx = sign * span * (0 + p0 * y0 + p1 * y1 + p2 * u0 + p3 * u1);
+        if (!(dpx !== 0)) return -1;
+        const step = px / dpx;
+        if (!(Math.abs(step) <= 1e-9 * Math.abs(x - step))) {
+          x -= step;
+          continue;
+        }
+        x -= step;
+        if (!(x >= -0.5 && x <= 1.5)) return -1;
+        const tau = g.anchorH + x * span;
+        if (!(tau > 0 && tau <= h)) return -1;
+        const d = -step * span;
+        const out = this.locFound;
+        out[0] = y0 + (0 + a00 * y0 + a01 * y1 + m[2]! * u0 + m[3]! * u1) * d;
+        out[1] = y1 + (0 + a10 * y0 + a11 * y1 + m[6]! * u0 + m[7]! * u1) * d;
+        out[2] = u0;
+        out[3] = u1;
+        sc[8] = tau;
+        this.counters.anchoredLocations++;
+        return 1;
       }
-    } else {
-      this.hArg[0] = span;
-      K = this.taylor(t, wa, this.locWb);
-      this.guardTerms(row, K);
+      return -1;
     }
+    const V = this.taylorV, pc = this.polyC;
+    // p(s) = sum pc_k s^k: the first term is the guard at the anchor; beyond it only the
+    // states are non-zero
+    pc[0] = ga;
+    this.hArg[0] = span;
+    const K = this.taylor(t, wa, this.locWb);
+    this.guardTerms(row, K);
     // Newton from s = 1/2 (increasing in s when span > 0, decreasing when the root lies before
     // the anchor). The step is a fraction normA |span| <= 1/4 of the polynomial's curvature
     // scale, so once a step is below 1e-9 the next one would be below 1e-18: converged.
@@ -1369,25 +1391,12 @@ export class Simulation {
     const tau = g.anchorH + x * span;
     if (!(tau > 0 && tau <= h)) return -1;
     const out = this.locFound;
-    if (nx === 2) {
-      let v0 = V[K * n]!, v1 = V[K * n + 1]!;
-      for (let k = K - 1, o = (K - 1) * n; k >= 0; k--, o -= n) {
-        v0 = v0 * x + V[o]!;
-        v1 = v1 * x + V[o + 1]!;
-      }
-      out[0] = v0;
-      out[1] = v1;
-    } else {
-      for (let j = 0; j < nx; j++) {
-        let v = V[K * n + j]!;
-        for (let k = K - 1; k >= 0; k--) v = v * x + V[k * n + j]!;
-        out[j] = v;
-      }
+    for (let j = 0; j < nx; j++) {
+      let v = V[K * n + j]!;
+      for (let k = K - 1; k >= 0; k--) v = v * x + V[k * n + j]!;
+      out[j] = v;
     }
-    if (n === 4 && nx === 2) {
-      out[2] = w0[2]!;
-      out[3] = w0[3]!;
-    } else for (let j = nx; j < n; j++) out[j] = w0[j]!;
+    for (let j = nx; j < n; j++) out[j] = w0[j]!;
     sc[8] = tau;
     this.counters.anchoredLocations++;
     return 1;
