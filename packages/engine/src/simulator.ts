@@ -235,8 +235,12 @@ function grown<T extends Float64Array | Int32Array>(a: T): T {
   return b;
 }
 
-/** Number of Taylor terms giving a truncation below 2e-17 (relative) for rho = ||A|| h <= 1. */
-function taylorOrder(rhoSigned: number): number {
+/**
+ * Number of Taylor terms giving a truncation below 2e-17 (relative) for rho = ||A|| h <= 1:
+ * the smallest k >= 2 with rho^k / k! < 2e-17, the term built factor by factor. The
+ * definition; the simulator looks the same number up in {@link taylorOrder}.
+ */
+export function taylorOrderByTerms(rhoSigned: number): number {
   const rho = Math.abs(rhoSigned); // a backward step needs the same order
   if (rho === 0) return 1;
   let term = 1;
@@ -245,6 +249,45 @@ function taylorOrder(rhoSigned: number): number {
     if (term < 2e-17 && k >= 2) return k;
   }
   return TAYLOR_MAX;
+}
+
+/**
+ * ORDER_BOUND[K]: the smallest double rho whose order exceeds K, for K = 2 .. TAYLOR_MAX - 1.
+ * Each term built factor by factor is non-decreasing in rho (so is every correctly rounded
+ * factor), hence so is the order, and bisection on the doubles finds the bound exactly. Built
+ * at first use (a fraction of a millisecond).
+ */
+let ORDER_BOUND: Float64Array | null = null;
+
+function orderBounds(): Float64Array {
+  const b = new Float64Array(TAYLOR_MAX + 1).fill(Infinity);
+  for (let K = 2; K < TAYLOR_MAX; K++) {
+    let lo = 0, hi = 1024; // order(0) = 1 <= K < order(1024) = TAYLOR_MAX
+    for (;;) {
+      const mid = lo + (hi - lo) / 2;
+      if (mid === lo || mid === hi) break;
+      if (taylorOrderByTerms(mid) > K) hi = mid;
+      else lo = mid;
+    }
+    b[K] = hi;
+  }
+  return b;
+}
+
+/** A copy of the bounds (for tests). */
+export function taylorOrderBounds(): Float64Array {
+  return (ORDER_BOUND ?? (ORDER_BOUND = orderBounds())).slice();
+}
+
+/** taylorOrderByTerms(rho) by comparisons with the bounds (the same number, without the
+ * chain of divisions that the duration of every located segment would pay). */
+export function taylorOrder(rhoSigned: number): number {
+  const rho = Math.abs(rhoSigned);
+  if (rho === 0) return 1;
+  const b = ORDER_BOUND ?? (ORDER_BOUND = orderBounds());
+  let K = 2;
+  while (K < TAYLOR_MAX && rho >= b[K]!) K++;
+  return K;
 }
 
 /** The compiled model shared by runs: circuit, signals and the topology cache. */

@@ -1,6 +1,7 @@
 import { describe, it, expect } from 'vitest';
 import fc from 'fast-check';
 import { expm, expmAugmented, norm1, PADE_COEFFICIENTS } from '../src/expm.ts';
+import { taylorOrder, taylorOrderBounds, taylorOrderByTerms } from '../src/simulator.ts';
 
 /** |x - ref| / |ref| */
 function rel(x: number, ref: number): number {
@@ -421,5 +422,41 @@ describe('expm: interface', () => {
   it('returns NaN for non-finite input instead of looping', () => {
     const e = expm(mat([[Number.POSITIVE_INFINITY, 0], [0, 1]]), 2);
     expect(Number.isNaN(e[0])).toBe(true);
+  });
+});
+
+describe('Taylor order lookup', () => {
+  // The simulator looks the order up in a table of bounds found by bisection; the table must
+  // give exactly the order its definition gives (the smallest k >= 2 with rho^k / k! < 2e-17,
+  // the term built factor by factor), at random rho and at both sides of every bound.
+  it('equals the order built term by term, everywhere (exact)', () => {
+    fc.assert(
+      fc.property(fc.double({ min: -64, max: 64, noNaN: true }), (rho) => taylorOrder(rho) === taylorOrderByTerms(rho)),
+      { numRuns: 20000 },
+    );
+    const near: number[] = [];
+    for (let e = -12; e <= 1; e += 0.01) near.push(10 ** e);
+    for (const r of near) {
+      expect(taylorOrder(r)).toBe(taylorOrderByTerms(r));
+      // the neighbouring doubles of each sample
+      const up = r + r * 2 ** -52, down = r - r * 2 ** -53;
+      expect(taylorOrder(up)).toBe(taylorOrderByTerms(up));
+      expect(taylorOrder(down)).toBe(taylorOrderByTerms(down));
+    }
+    // each bound is the first double past its order, and the double before it is not
+    const b = taylorOrderBounds();
+    const bits = new DataView(new ArrayBuffer(8));
+    for (let K = 2; K < 40; K++) {
+      bits.setFloat64(0, b[K]!);
+      bits.setBigUint64(0, bits.getBigUint64(0) - 1n);
+      const before = bits.getFloat64(0);
+      expect(taylorOrderByTerms(b[K]!)).toBeGreaterThan(K);
+      expect(taylorOrderByTerms(before)).toBeLessThanOrEqual(K);
+      expect(taylorOrder(b[K]!)).toBe(taylorOrderByTerms(b[K]!));
+      expect(taylorOrder(before)).toBe(taylorOrderByTerms(before));
+    }
+    // at the bounds themselves: rho = 0.25 needs 13 terms (0.25^13 / 13! = 2.4e-18, from the definition)
+    expect(taylorOrder(0.25)).toBe(13);
+    expect(taylorOrder(0)).toBe(1);
   });
 });
