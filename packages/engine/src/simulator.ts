@@ -2050,9 +2050,22 @@ export class Simulation {
     // Pre-screen: over the segment |g(s) - g(0)| <= h max |g'| <= h |drow|_1 max ||w(s)||_inf
     // <= h |drow|_1 exp(normM h) ||w0||_inf, so a guard farther than that from zero cannot
     // cross (the second term covers the rounding of g(0)). One dot product instead of six.
+    // (the smallest stage, n = 4, with the start state in locals for the whole screen; its
+    // largest magnitude by comparisons, which give Math.max's value for finite states)
+    const four = w0.length === 4;
+    let a0 = 0, a1 = 0, a2 = 0, a3 = 0;
     let wmax = 0;
-    if (w0.length === 4) wmax = Math.max(Math.abs(w0[0]!), Math.abs(w0[1]!), Math.abs(w0[2]!), Math.abs(w0[3]!));
-    else for (let j = 0; j < w0.length; j++) {
+    if (four) {
+      a0 = w0[0]!;
+      a1 = w0[1]!;
+      a2 = w0[2]!;
+      a3 = w0[3]!;
+      const m1 = Math.abs(a1), m2 = Math.abs(a2), m3 = Math.abs(a3);
+      wmax = Math.abs(a0);
+      if (m1 > wmax) wmax = m1;
+      if (m2 > wmax) wmax = m2;
+      if (m3 > wmax) wmax = m3;
+    } else for (let j = 0; j < w0.length; j++) {
       const a = Math.abs(w0[j]!);
       if (a > wmax) wmax = a;
     }
@@ -2069,15 +2082,14 @@ export class Simulation {
       const row = g.row, drow = g.drow, d4row = g.d4row;
       {
         let f = 0;
-        if (row.length === 4) f = 0 + row[0]! * w0[0]! + row[1]! * w0[1]! + row[2]! * w0[2]! + row[3]! * w0[3]!;
+        if (four) f = 0 + row[0]! * a0 + row[1]! * a1 + row[2]! * a2 + row[3]! * a3;
         else for (let j = 0; j < row.length; j++) f += row[j]! * w0[j]!;
         if (Math.abs(f) > g.dnorm * reach + 1e-14 * g.rnorm * wmax) continue;
       }
       // the six dot products in one pass (each sum in the order of its own loop)
       let f0 = 0, f1 = 0, d0 = 0, d1 = 0, q0 = 0, q1 = 0;
-      if (row.length === 4) {
+      if (four) {
         // the smallest stage written out (same sums, same order)
-        const a0 = w0[0]!, a1 = w0[1]!, a2 = w0[2]!, a3 = w0[3]!;
         const b0 = w1[0]!, b1 = w1[1]!, b2 = w1[2]!, b3 = w1[3]!;
         const r0 = row[0]!, r1 = row[1]!, r2 = row[2]!, r3 = row[3]!;
         const p0 = drow[0]!, p1 = drow[1]!, p2 = drow[2]!, p3 = drow[3]!;
