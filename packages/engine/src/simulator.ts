@@ -408,10 +408,9 @@ export class Simulation {
   private readonly useCache: boolean;
   private readonly maxCached: number;
   // event queue (small), sorted latest first: the next event is at qLen - 1
-  private qCyc: Float64Array;
-  private qOff: Float64Array;
-  private qKind = new Int32Array(16);
-  private qTag: Float64Array;
+  /** entry i at 4 i: cycle, offset, kind, tag (one array: each array a loop touches costs its
+   * own checks at every access) */
+  private q: Float64Array;
   private qLen = 0;
   /** queue changes recorded, not yet applied (see push): kind, tag, cycle, offset */
   private pend: Float64Array;
@@ -503,13 +502,11 @@ export class Simulation {
     // The run's scratch arrays are views of one buffer: a typed array over 64 bytes gets its own
     // off-heap store, about 1-2 us each, which was most of the set-up of a short run.
     const dense = c.devices.length <= 16;
-    const arena = new Arena(8 * (TAYLOR_MAX + 1 + 1 + 11 + 3 * 16 + 32 + (7 + TAYLOR_MAX + 1) * n + (dense ? 1 << c.devices.length : 0)));
+    const arena = new Arena(8 * (TAYLOR_MAX + 1 + 1 + 11 + 64 + 32 + (7 + TAYLOR_MAX + 1) * n + (dense ? 1 << c.devices.length : 0)));
     this.polyC = arena.f64(TAYLOR_MAX + 1);
     this.hArg = arena.f64(1);
     this.screen = arena.f64(11);
-    this.qCyc = arena.f64(16);
-    this.qOff = arena.f64(16);
-    this.qTag = arena.f64(16);
+    this.q = arena.f64(64);
     this.pend = arena.f64(32);
     this.w1 = arena.f64(n);
     this.wtmp = arena.f64(n);
@@ -678,8 +675,8 @@ export class Simulation {
     const count = this.pLen, pend = this.pend;
     const tb = this.tb;
     const TIMER = KIND_TIMER; // a local: a module constant is reloaded at every use
-    // the queue arrays change only when they grow (below): read once
-    let qCyc = this.qCyc, qOff = this.qOff, qKind = this.qKind, qTag = this.qTag;
+    // the queue array changes only when it grows (below): read once
+    let q = this.q;
     let len = this.qLen;
     for (let p = 0; p < count; p += 4) {
       const kind = pend[p]!, tag = pend[p + 1]!;
@@ -687,24 +684,19 @@ export class Simulation {
       if (kind === TIMER) {
         // drop the pending timer with this tag, shifting the later part down to keep the order
         let i = 0;
-        while (i < len && !(qKind[i] === TIMER && qTag[i] === tag)) i++;
+        while (i < len && !(q[4 * i + 2] === TIMER && q[4 * i + 3] === tag)) i++;
         if (i < len) {
-          for (i++; i < len; i++) {
-            qCyc[i - 1] = qCyc[i]!;
-            qOff[i - 1] = qOff[i]!;
-            qKind[i - 1] = qKind[i]!;
-            qTag[i - 1] = qTag[i]!;
+          for (let o = 4 * i + 4; o < 4 * len; o += 4) {
+            q[o - 4] = q[o]!;
+            q[o - 3] = q[o + 1]!;
+            q[o - 2] = q[o + 2]!;
+            q[o - 1] = q[o + 3]!;
           }
           len--;
         }
         if (off !== off) continue; // cancelled
       }
-      if (len === qCyc.length) {
-        this.qCyc = qCyc = grown(qCyc);
-        this.qOff = qOff = grown(qOff);
-        this.qKind = qKind = grown(qKind);
-        this.qTag = qTag = grown(qTag);
-      }
+      if (4 * len === q.length) this.q = q = grown(q);
       // normalise the offset into [0, tb)
       if (off >= tb || off < 0) {
         const k = Math.floor(off / tb);
@@ -713,19 +705,19 @@ export class Simulation {
         if (off < 0) off = 0;
       }
       // one pass from the earliest end moves the entries due before the new one up by a slot
-      let j = len;
-      for (; j > 0; j--) {
-        const cj = qCyc[j - 1]!, oj = qOff[j - 1]!, kj = qKind[j - 1]!;
+      let o = 4 * len;
+      for (; o > 0; o -= 4) {
+        const cj = q[o - 4]!, oj = q[o - 3]!, kj = q[o - 2]!;
         if (cj > cyc || (cj === cyc && (oj > off || (oj === off && kj > kind)))) break;
-        qCyc[j] = cj;
-        qOff[j] = oj;
-        qKind[j] = kj;
-        qTag[j] = qTag[j - 1]!;
+        q[o] = cj;
+        q[o + 1] = oj;
+        q[o + 2] = kj;
+        q[o + 3] = q[o - 1]!;
       }
-      qCyc[j] = cyc;
-      qOff[j] = off;
-      qKind[j] = kind;
-      qTag[j] = tag;
+      q[o] = cyc;
+      q[o + 1] = off;
+      q[o + 2] = kind;
+      q[o + 3] = tag;
       len++;
     }
     this.qLen = len;
@@ -1903,7 +1895,7 @@ export class Simulation {
     if (this.pLen !== 0) this.applyQueued();
     if (this.activeDirty) this.rebuildActive();
     const qi = this.qLen - 1;
-    const c1 = this.qCyc[qi]!, o1 = this.qOff[qi]!;
+    const c1 = this.q[4 * qi]!, o1 = this.q[4 * qi + 1]!;
     const h = (c1 - this.cyc) * this.tb + (o1 - this.off);
     const t = this.topo;
     const w0 = this.w;
@@ -2012,14 +2004,15 @@ export class Simulation {
     for (;;) {
       if (this.pLen !== 0) this.applyQueued();
       const i = this.qLen - 1;
-      if (i < 0 || this.qCyc[i] !== c1 || this.qOff[i] !== o1) break;
-      if (this.qKind[i] !== KIND_TIMER || ctrl === undefined) {
+      const q = this.q;
+      if (i < 0 || q[4 * i] !== c1 || q[4 * i + 1] !== o1) break;
+      if (q[4 * i + 2] !== KIND_TIMER || ctrl === undefined) {
         this.handleScheduled(before);
         return;
       }
       this.qLen = i;
       counters.events++;
-      ctrl.onEvent(this.ctx, this.qTag[i]!);
+      ctrl.onEvent(this.ctx, q[4 * i + 3]!);
     }
     // switching: without diodes, a table lookup unless the new topology holds an inductor
     const key = this.key;
@@ -2191,9 +2184,10 @@ export class Simulation {
       if (this.pLen !== 0) this.applyQueued();
       const i = this.qLen - 1;
       if (i < 0) break;
-      if (this.qCyc[i] !== this.cyc || this.qOff[i] !== this.off) break;
-      const kind = this.qKind[i]!;
-      const tag = this.qTag[i]!;
+      const q = this.q;
+      if (q[4 * i] !== this.cyc || q[4 * i + 1] !== this.off) break;
+      const kind = q[4 * i + 2]!;
+      const tag = q[4 * i + 3]!;
       this.qLen = i;
       this.counters.events++;
       if (kind === KIND_STOP) {
