@@ -77,6 +77,56 @@ describe('drift-free scheduling', () => {
     expect(edges).toBe(1e6 + 1); // k = 0 .. 10^6, the last one at the stop time
     expect(bad).toBe(0);
   });
+
+  it('timers fire in time order, one instant in scheduling order, a tag replaced or cancelled by a later request (the controller contract), with more timers pending than the queue first holds', () => {
+    // The reference is the contract itself, modelled in a few lines: a pending request per tag
+    // (a later at() replaces it and takes a new place in the scheduling order, cancel() drops
+    // it); they fire sorted by (cycle, offset, scheduling order).
+    const T = 1e-6;
+    const tagArb = fc.oneof(fc.integer({ min: 0, max: 40 }), fc.constantFrom(-3, 100.5, 1e6));
+    const request = fc.record({
+      tag: tagArb,
+      cancel: fc.integer({ min: 0, max: 4 }).map((k) => k === 0), // one request in five cancels
+      cycle: fc.integer({ min: 0, max: 4 }),
+      offset: fc.constantFrom(0, 0.25 * T, 0.5 * T, 0.999 * T),
+    });
+    const rc: CircuitSpec = {
+      elements: [
+        { kind: 'voltage-source', id: 'V1', pos: 'in', neg: '0', volts: 1 },
+        { kind: 'resistor', id: 'R1', a: 'in', b: 'o', ohms: 1 },
+        { kind: 'capacitor', id: 'C1', a: 'o', b: '0', farads: 1e-6 },
+      ],
+    };
+    const model = new CircuitModel(rc);
+    fc.assert(
+      fc.property(fc.array(request, { minLength: 1, maxLength: 80 }), (reqs) => {
+        const pending = new Map<number, { cycle: number; offset: number; order: number }>();
+        reqs.forEach((r, order) => {
+          if (r.cancel) pending.delete(r.tag);
+          else pending.set(r.tag, { cycle: r.cycle, offset: r.offset, order });
+        });
+        const expected = [...pending.entries()]
+          .sort(([, a], [, b]) => a.cycle - b.cycle || a.offset - b.offset || a.order - b.order)
+          .map(([tag, a]) => `${tag}@${a.cycle}+${a.offset}`);
+        const fired: string[] = [];
+        const ctrl: Controller = {
+          start(ctx) {
+            for (const r of reqs) {
+              if (r.cancel) ctx.cancel(r.tag);
+              else ctx.at(r.tag, r.cycle, r.offset);
+            }
+          },
+          onEvent(ctx, tag) {
+            fired.push(`${tag}@${ctx.cycle}+${ctx.offsetS}`);
+          },
+        };
+        const r = simulate(model, { stopS: 6 * T, timeBaseS: T, controller: ctrl });
+        expect(r.status).toBe('finished');
+        expect(fired).toEqual(expected);
+      }),
+      { numRuns: 300 },
+    );
+  });
 });
 
 describe('runs sharing one compiled model', () => {
