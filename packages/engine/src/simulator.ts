@@ -1045,7 +1045,7 @@ export class Simulation {
       }
       const room = this.useCache && repeat && t.cache.size < this.maxCached;
       if (!room && rho <= 1) {
-        this.taylor(t, w0, out);
+        this.taylorEnd(t, w0, out);
         this.counters.taylorSegments++;
         return;
       }
@@ -1156,6 +1156,43 @@ export class Simulation {
     return K;
   }
 
+  /**
+   * The end state of taylor() alone, for callers that do not read the terms: for two states
+   * and two inputs in registers, without storing them (the same sums in the same order: the
+   * same bits).
+   */
+  private taylorEnd(t: Topology, w0: Float64Array, out: Float64Array): void {
+    if (!(this.n === 4 && this.nx === 2)) {
+      this.taylor(t, w0, out);
+      return;
+    }
+    const m = t.m;
+    const h = this.hArg[0]!;
+    let K = t.taylorK;
+    if (t.taylorH !== h) {
+      K = t.taylorK = taylorOrder(t.normA * h);
+      t.taylorH = h;
+    }
+    const x0 = w0[0]!, x1 = w0[1]!, u0 = w0[2]!, u1 = w0[3]!;
+    let v0 = (0 + m[0]! * x0 + m[1]! * x1 + m[2]! * u0 + m[3]! * u1) * h;
+    let v1 = (0 + m[4]! * x0 + m[5]! * x1 + m[6]! * u0 + m[7]! * u1) * h;
+    let o0 = x0 + v0, o1 = x1 + v1;
+    const a00 = m[0]!, a01 = m[1]!, a10 = m[4]!, a11 = m[5]!;
+    for (let k = 2; k <= K; k++) {
+      const f = h / k;
+      const s0 = (0 + a00 * v0 + a01 * v1) * f;
+      const s1 = (0 + a10 * v0 + a11 * v1) * f;
+      o0 += s0;
+      o1 += s1;
+      v0 = s0;
+      v1 = s1;
+    }
+    out[0] = o0;
+    out[1] = o1;
+    out[2] = u0;
+    out[3] = u1;
+  }
+
   /** Exact state at offset tau (0 <= tau) from w0 in topology t, into out. */
   private evalAt(t: Topology, tau: number, w0: Float64Array, out: Float64Array): void {
     if (tau === 0) {
@@ -1164,7 +1201,7 @@ export class Simulation {
     }
     if (t.normA * tau <= 1) {
       this.hArg[0] = tau;
-      this.taylor(t, w0, out);
+      this.taylorEnd(t, w0, out);
       return;
     }
     this.splitAt(t, tau, w0, out);
@@ -1185,7 +1222,7 @@ export class Simulation {
       t.multiples.set(k, Ek);
     }
     this.hArg[0] = tau - k * hb;
-    this.taylor(t, w0, this.splitTmp);
+    this.taylorEnd(t, w0, this.splitTmp);
     this.matvec(Ek, this.splitTmp, out);
   }
 
