@@ -254,29 +254,26 @@ export function taylorOrderByTerms(rhoSigned: number): number {
 /**
  * ORDER_BOUND[K]: the smallest double rho whose order exceeds K, for K = 2 .. TAYLOR_MAX - 1.
  * Each term built factor by factor is non-decreasing in rho (so is every correctly rounded
- * factor), hence so is the order, and bisection on the doubles finds the bound exactly. Built
- * at first use (a fraction of a millisecond).
+ * factor), hence so is the order, and bisection on the doubles found each bound exactly; a test
+ * checks every one against the definition on both of its sides.
  */
-let ORDER_BOUND: Float64Array | null = null;
-
-function orderBounds(): Float64Array {
-  const b = new Float64Array(TAYLOR_MAX + 1).fill(Infinity);
-  for (let K = 2; K < TAYLOR_MAX; K++) {
-    let lo = 0, hi = 1024; // order(0) = 1 <= K < order(1024) = TAYLOR_MAX
-    for (;;) {
-      const mid = lo + (hi - lo) / 2;
-      if (mid === lo || mid === hi) break;
-      if (taylorOrderByTerms(mid) > K) hi = mid;
-      else lo = mid;
-    }
-    b[K] = hi;
-  }
-  return b;
-}
+// prettier-ignore
+const ORDER_BOUND = Float64Array.of(
+  Infinity, Infinity, 6.324555320336759e-9, 0.000004932424148660941, 0.00014801656089845708,
+  0.0011913578981670918, 0.004932424148660941, 0.01391078071480448, 0.03078355801572517,
+  0.0578509288716415, 0.09684546814614294, 0.14891072359220597, 0.2146745592799427,
+  0.29435405568156886, 0.38785926282834515, 0.4948823600613839, 0.6149688235402054,
+  0.7475717020114355, 0.8920917044411818, 1.0479060512750957, 1.2143887369312414,
+  1.3909243797689896, 1.57691736563874, 1.7717975850014434, 1.9750237361287328,
+  2.1860849127779165, 2.404501002079106, 2.6298222744573887, 2.8616284409590795,
+  3.0995273751393726, 3.343153639492196, 3.5921669147716258, 3.846250400351922,
+  4.105109231945333, 4.368468947290386, 4.63607401918354, 4.907686467241055,
+  5.18308455415813, 5.462061568329734, 5.744424692037712, Infinity,
+);
 
 /** A copy of the bounds (for tests). */
 export function taylorOrderBounds(): Float64Array {
-  return (ORDER_BOUND ?? (ORDER_BOUND = orderBounds())).slice();
+  return ORDER_BOUND.slice();
 }
 
 /** taylorOrderByTerms(rho) by comparisons with the bounds (the same number, without the
@@ -284,9 +281,8 @@ export function taylorOrderBounds(): Float64Array {
 export function taylorOrder(rhoSigned: number): number {
   const rho = Math.abs(rhoSigned);
   if (rho === 0) return 1;
-  const b = ORDER_BOUND ?? (ORDER_BOUND = orderBounds());
   let K = 2;
-  while (K < TAYLOR_MAX && rho >= b[K]!) K++;
+  while (K < TAYLOR_MAX && rho >= ORDER_BOUND[K]!) K++;
   return K;
 }
 
