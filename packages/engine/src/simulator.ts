@@ -498,6 +498,7 @@ export class Simulation {
     // The run's scratch arrays are views of one buffer: a typed array over 64 bytes gets its own
     // off-heap store, about 1-2 us each, which was most of the set-up of a short run.
     const dense = c.devices.length <= 16;
+    // (the size is the sum of the views' lengths below, in their order)
     const arena = new Arena(8 * (TAYLOR_MAX + 1 + 1 + 11 + 64 + 32 + (7 + TAYLOR_MAX + 1) * n + (dense ? 1 << c.devices.length : 0)));
     this.polyC = arena.f64(TAYLOR_MAX + 1);
     this.hArg = arena.f64(1);
@@ -1091,45 +1092,27 @@ export class Simulation {
     }
     const V = this.taylorV;
     // two states (the common small stage): the terms beyond the first written out below with
-    // the matrix in locals; with two inputs the first term too. The same sums in the same order
-    // as the general loop.
-    let K2 = nx === 2 ? 1 : K;
-    if (n === 4 && nx === 2) {
-      const x0 = w0[0]!, x1 = w0[1]!, u0 = w0[2]!, u1 = w0[3]!;
-      V[0] = x0;
-      V[1] = x1;
-      V[2] = u0;
-      V[3] = u1;
-      const v0 = (0 + m[0]! * x0 + m[1]! * x1 + m[2]! * u0 + m[3]! * u1) * h;
-      const v1 = (0 + m[4]! * x0 + m[5]! * x1 + m[6]! * u0 + m[7]! * u1) * h;
-      V[4] = v0;
-      V[5] = v1;
-      out[0] = x0 + v0;
-      out[1] = x1 + v1;
-      out[2] = u0;
-      out[3] = u1;
-      K2 = 1;
-    } else {
-      for (let j = 0; j < n; j++) {
-        V[j] = w0[j]!;
-        out[j] = w0[j]!;
+    // the matrix in locals, the same sums in the same order as the general loop
+    const K2 = nx === 2 ? 1 : K;
+    for (let j = 0; j < n; j++) {
+      V[j] = w0[j]!;
+      out[j] = w0[j]!;
+    }
+    for (let k = 1; k <= K2; k++) {
+      const prev = (k - 1) * n;
+      const cur = k * n;
+      const f = h / k;
+      for (let i = 0; i < nx; i++) {
+        let s = 0;
+        const o = i * n;
+        // after the first product only the x part of the previous term is non-zero
+        const lim = k === 1 ? n : nx;
+        for (let j = 0; j < lim; j++) s += m[o + j]! * V[prev + j]!;
+        s *= f;
+        V[cur + i] = s;
+        out[i]! += s;
       }
-      for (let k = 1; k <= K2; k++) {
-        const prev = (k - 1) * n;
-        const cur = k * n;
-        const f = h / k;
-        for (let i = 0; i < nx; i++) {
-          let s = 0;
-          const o = i * n;
-          // after the first product only the x part of the previous term is non-zero
-          const lim = k === 1 ? n : nx;
-          for (let j = 0; j < lim; j++) s += m[o + j]! * V[prev + j]!;
-          s *= f;
-          V[cur + i] = s;
-          out[i]! += s;
-        }
-        // V[cur + j] for j >= nx stays 0 from the allocation: inputs are constant
-      }
+      // V[cur + j] for j >= nx stays 0 from the allocation: inputs are constant
     }
     if (K2 < K) {
       const a00 = m[0]!, a01 = m[1]!, a10 = m[n]!, a11 = m[n + 1]!;
@@ -1608,16 +1591,7 @@ export class Simulation {
         // kept on the topology: a current interrupted by a switch recurs every cycle
         let p = t.probeTopology;
         if (p === undefined) p = t.probeTopology = this.model.probe(this.key);
-        let best = -1, bestV = this.vTol;
-        for (let q = 0; q < this.diodeCount; q++) {
-          const d = this.diodeIdx[q]!;
-          if ((this.key >>> d) & 1) continue;
-          const v = Simulation.dot(p.deviceVoltage[d]!, w) - this.diodeVf[q]!;
-          if (v > bestV) {
-            bestV = v;
-            best = d;
-          }
-        }
+        const best = this.mostForwardBiased(p);
         if (best < 0) this.noFreewheelingPath(interrupted);
         this.flip(best);
         continue;
@@ -1656,19 +1630,9 @@ export class Simulation {
    * settle(): its closures would make every call of settle allocate a context.)
    */
   private illPosedFlip(err: unknown): number {
-    const c = this.c, w = this.w;
+    const c = this.c;
     if (err instanceof SimulationError && err.code === 'floating-current-source') {
-      const p = this.model.probe(this.key);
-      let best = -1, bestV = this.vTol;
-      for (let d = 0; d < c.devices.length; d++) {
-        const dev = c.devices[d]!;
-        if (dev.kind !== 'diode' || (this.key >>> d) & 1) continue;
-        const v = Simulation.dot(p.deviceVoltage[d]!, w) - c.branches[dev.branch]!.forwardVolts;
-        if (v > bestV) {
-          bestV = v;
-          best = d;
-        }
-      }
+      const best = this.mostForwardBiased(this.model.probe(this.key));
       if (best < 0) throw new SimulationError(err.code, `${err.message} at t = ${this.timeS} s (no diode can take its current)`, err.elements, this.timeS);
       return best;
     }
@@ -1676,6 +1640,23 @@ export class Simulation {
     const d = loop === null ? -1 : c.devices.findIndex((dev, i) => dev.kind === 'diode' && ((this.key >>> i) & 1) === 1 && loop.includes(dev.id));
     if (d < 0) throw err;
     return d;
+  }
+
+  /** The off diode that the probe network p forward-biases most past its threshold (by more
+   * than vTol), or -1: the one to take a current that has no other path. */
+  private mostForwardBiased(p: Topology): number {
+    const w = this.w;
+    let best = -1, bestV = this.vTol;
+    for (let q = 0; q < this.diodeCount; q++) {
+      const d = this.diodeIdx[q]!;
+      if ((this.key >>> d) & 1) continue;
+      const v = Simulation.dot(p.deviceVoltage[d]!, w) - this.diodeVf[q]!;
+      if (v > bestV) {
+        bestV = v;
+        best = d;
+      }
+    }
+    return best;
   }
 
   private tooManyFlips(): never {
@@ -2062,8 +2043,7 @@ export class Simulation {
 
   /**
    * Screens every active guard over the segment just propagated (w -> w1 over h = screen[5])
-   * and locates
-   * the earliest crossing. Returns the guard's index in the active list, or -1, with the time
+   * and locates the earliest crossing. Returns the guard's index in the active list, or -1, with the time
    * in screen[9] and the state there in locBest.
    */
   private screenGuards(t: Topology): number {
