@@ -79,9 +79,11 @@ describe('drift-free scheduling', () => {
   });
 
   it('timers fire in time order, one instant in scheduling order, a tag replaced or cancelled by a later request (the controller contract), with more timers pending than the queue first holds', () => {
-    // The reference is the contract itself, modelled in a few lines: a pending request per tag
-    // (a later at() replaces it and takes a new place in the scheduling order, cancel() drops
-    // it); they fire sorted by (cycle, offset, scheduling order).
+    // Source: the controller contract (ControlContext.at/cancel: a later request for a tag
+    // replaces or cancels the pending one) and the design's rule that simultaneous events go in
+    // a defined order (DESIGN.md 3.6: timers at one instant in scheduling order), modelled in a
+    // few lines as the reference: a pending request per tag, fired sorted by (cycle, offset,
+    // scheduling order). Exact equality of the fired sequence.
     const T = 1e-6;
     const tagArb = fc.oneof(fc.integer({ min: 0, max: 40 }), fc.constantFrom(-3, 100.5, 1e6));
     const request = fc.record({
