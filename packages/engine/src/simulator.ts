@@ -277,12 +277,17 @@ export function taylorOrderBounds(): Float64Array {
 }
 
 /** taylorOrderByTerms(rho) by comparisons with the bounds (the same number, without the
- * chain of divisions that the duration of every located segment would pay). */
-export function taylorOrder(rhoSigned: number): number {
+ * chain of divisions that the duration of every located segment would pay). The search starts
+ * at `near` (the order of the last duration in the same topology, which the next one rarely
+ * leaves) and walks up or down: order K holds on [ORDER_BOUND[K - 1], ORDER_BOUND[K]). */
+export function taylorOrder(rhoSigned: number, near = 2): number {
   const rho = Math.abs(rhoSigned);
   if (rho === 0) return 1;
-  let K = 2;
-  while (K < TAYLOR_MAX && rho >= ORDER_BOUND[K]!) K++;
+  let K = near > 2 ? (near < TAYLOR_MAX ? near : TAYLOR_MAX) : 2;
+  if (rho >= ORDER_BOUND[K]!) {
+    do K++;
+    while (K < TAYLOR_MAX && rho >= ORDER_BOUND[K]!);
+  } else while (K > 2 && rho < ORDER_BOUND[K - 1]!) K--;
   return K;
 }
 
@@ -1087,7 +1092,7 @@ export class Simulation {
     // length every cycle, and the order's loop is a chain of divisions
     let K = t.taylorK;
     if (t.taylorH !== h) {
-      K = t.taylorK = taylorOrder(t.normA * h);
+      K = t.taylorK = taylorOrder(t.normA * h, K);
       t.taylorH = h;
     }
     const V = this.taylorV;
@@ -1149,7 +1154,7 @@ export class Simulation {
     const h = this.hArg[0]!;
     let K = t.taylorK;
     if (t.taylorH !== h) {
-      K = t.taylorK = taylorOrder(t.normA * h);
+      K = t.taylorK = taylorOrder(t.normA * h, K);
       t.taylorH = h;
     }
     const x0 = w0[0]!, x1 = w0[1]!, u0 = w0[2]!, u1 = w0[3]!;
@@ -1366,7 +1371,7 @@ export class Simulation {
       // below 1e-19 of it).
       let K = t.taylorK;
       if (t.taylorH !== span) {
-        K = t.taylorK = taylorOrder(t.normA * span);
+        K = t.taylorK = taylorOrder(t.normA * span, K);
         t.taylorH = span;
       }
       const m = t.m;

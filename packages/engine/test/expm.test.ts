@@ -437,6 +437,11 @@ describe('Taylor order lookup', () => {
       fc.property(fc.double({ min: -64, max: 64, noNaN: true }), (rho) => taylorOrder(rho) === taylorOrderByTerms(rho)),
       { numRuns: 20000 },
     );
+    // from any starting order (the simulator starts at the last one it used)
+    fc.assert(
+      fc.property(fc.double({ min: -64, max: 64, noNaN: true }), fc.integer({ min: 0, max: 45 }), (rho, near) => taylorOrder(rho, near) === taylorOrderByTerms(rho)),
+      { numRuns: 20000 },
+    );
     const near: number[] = [];
     for (let e = -12; e <= 1; e += 0.01) near.push(10 ** e);
     for (const r of near) {
@@ -457,6 +462,10 @@ describe('Taylor order lookup', () => {
       expect(taylorOrderByTerms(before)).toBeLessThanOrEqual(K);
       expect(taylorOrder(b[K]!)).toBe(taylorOrderByTerms(b[K]!));
       expect(taylorOrder(before)).toBe(taylorOrderByTerms(before));
+      for (const near of [2, K - 1, K, K + 1, 40]) {
+        expect(taylorOrder(b[K]!, near)).toBe(K + 1);
+        expect(taylorOrder(before, near)).toBe(K);
+      }
     }
     // at the bounds themselves: rho = 0.25 needs 13 terms (0.25^13 / 13! = 2.4e-18, from the definition)
     expect(taylorOrder(0.25)).toBe(13);
