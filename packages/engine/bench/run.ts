@@ -5,6 +5,7 @@ import os from 'node:os';
 import { fileURLToPath } from 'node:url';
 import { CircuitModel, Simulation, simulate, type SampleSink } from '../src/index.ts';
 import { odexRun } from './odex-equations.ts';
+import { makeS3Loop } from './s3-loop.ts';
 import { DUTY, PERIOD_S, SCENARIOS, openLoop } from './scenarios.ts';
 
 type Key = keyof typeof SCENARIOS;
@@ -84,7 +85,13 @@ interface OdexResult {
   engineMs: number;
   odexMs: number;
   line: string;
+  /** S3 only: the hand-written loop of the same method, timed in the same rounds */
+  loopMs?: number | undefined;
+  loopLine?: string | undefined;
 }
+
+/** The hand-written S3 loop (bench/s3-loop.ts), built once so that every measurement runs warm code. */
+const s3Loop = makeS3Loop();
 
 function versusOdex(k: Key, cycles: number): OdexResult {
   const s = SCENARIOS[k];
@@ -108,6 +115,19 @@ function versusOdex(k: Key, cycles: number): OdexResult {
     return best;
   };
   let tEngine = engineBest();
+  // S3: the hand-written loop of the same method (the floor under the engine's generality)
+  let loopState: number[] = [];
+  let tLoop = NaN;
+  const loopBest = (): number => {
+    let best = Infinity;
+    for (let i = 0; i < 10; i++) {
+      t0 = performance.now();
+      loopState = s3Loop.run(cycles);
+      best = Math.min(best, performance.now() - t0);
+    }
+    return best;
+  };
+  if (k === 'S3') for (let i = 0; i < 40; i++) loopState = s3Loop.run(cycles);
   const xe = Array.from(r.state.slice(0, model.circuit.nx));
   // odex state order: S2 = [LF, CF, L1, C1]; S1/S3 = [L1, C1]. Engine state names give the same order here.
   const names = model.circuit.stateNames;
@@ -122,22 +142,28 @@ function versusOdex(k: Key, cycles: number): OdexResult {
     const y = odexRun(k, cycles, PERIOD_S, DUTY, tol).y;
     const e = relErr(y, tight);
     if (e <= goal || tol === 1e-14) {
-      const rounds: { odex: number; engine: number }[] = [];
+      const rounds: { odex: number; engine: number; loop: number }[] = [];
       for (let rep = 0; rep < 3; rep++) {
         t0 = performance.now();
         odexRun(k, cycles, PERIOD_S, DUTY, tol);
         const odexMs = performance.now() - t0;
-        rounds.push({ odex: odexMs, engine: engineBest() });
+        rounds.push({ odex: odexMs, engine: engineBest(), loop: k === 'S3' ? loopBest() : NaN });
       }
       rounds.sort((a, b) => a.odex / a.engine - b.odex / b.engine);
       tOdex = rounds[1]!.odex;
       tEngine = rounds[1]!.engine;
+      tLoop = rounds[1]!.loop;
       chosen = tol;
       odexErr = e;
       break;
     }
   }
+  const loopLine = k === 'S3'
+    ? `S3 hand-written loop of the same method, nothing general (bench/s3-loop.ts): ${tLoop.toFixed(2)} ms in the same rounds (final-state difference to odex at 1e-14: ${relErr(loopState, tight).toExponential(1)}); odex/loop = ${(tOdex / tLoop).toFixed(0)}x; the engine takes ${(tEngine / tLoop).toFixed(1)} times the loop`
+    : undefined;
   return {
+    loopMs: tLoop,
+    loopLine,
     engineMs: tEngine,
     odexMs: tOdex,
     line: `${k}: engine ${tEngine.toFixed(2)} ms (final-state difference to odex at 1e-14: ${engineErr.toExponential(1)}); odex needs tol ${chosen.toExponential(0)} to get within ${goal.toExponential(1)} (got ${odexErr.toExponential(1)}): ${tOdex.toFixed(1)} ms; ratio odex/engine = ${(tOdex / tEngine).toFixed(0)}x (target >= 100x)`,
@@ -220,6 +246,10 @@ function parent(): void {
     const m = med(ratios);
     const at = reports[ratios.indexOf(m)]!.odex[k];
     console.log(`${at.line.replace(/ratio odex\/engine = .*$/, '')}ratio odex/engine = ${m.toFixed(0)}x ${spread(ratios, (x) => `${x.toFixed(0)}x`)} (target >= 100x)`);
+    if (at.loopLine !== undefined) {
+      const perLoop = reports.map((r) => r.odex[k].engineMs / r.odex[k].loopMs!);
+      console.log(`${at.loopLine} [${perLoop.map((x) => x.toFixed(1)).join(', ')}]`);
+    }
   }
   console.log(reports[0]!.memory);
 }
