@@ -10,7 +10,7 @@ import { taylorOrder } from '../src/simulator.ts';
 import { DUTY, PERIOD_S, SCENARIOS } from './scenarios.ts';
 
 export interface S3Loop {
-  /** Runs `cycles` cycles from the circuit's initial state; returns the final [L1 current, C1 charge]. */
+  /** Runs `cycles` cycles from the circuit's initial state; returns the final [L1 current, C1 charge] (one array, overwritten by the next run). */
   run(cycles: number): [number, number];
 }
 
@@ -30,6 +30,9 @@ export function makeS3Loop(): S3Loop {
   // the anchor: a propagator of the off topology to a recent crossing, renewed as the engine does
   let anchorE = Eoff, anchorH = tOff, lastRoot = -1;
   let kLoc = 2, kDcm = 2;
+  // the result goes in one array made here: an array literal at the return of a loop the
+  // optimiser compiled on the stack (before any run returned) has no feedback and deoptimises
+  const result: [number, number] = [0, 0];
   return {
     run(cycles: number): [number, number] {
       let x0 = w0[0]!, x1 = w0[1]!;
@@ -101,7 +104,9 @@ export function makeS3Loop(): S3Loop {
         x0 = o0;
         x1 = o1;
       }
-      return [x0, x1];
+      result[0] = x0;
+      result[1] = x1;
+      return result;
     },
   };
 }
