@@ -1089,7 +1089,7 @@ export class Simulation {
     const n = this.n, nx = this.nx, m = t.m;
     const h = this.hArg[0]!;
     // the order of the last duration is kept on the topology: located segments repeat their
-    // length every cycle, and the order's loop is a chain of divisions
+    // length every cycle, and a new length's order is searched from it
     let K = t.taylorK;
     if (t.taylorH !== h) {
       K = t.taylorK = taylorOrder(t.normA * h, K);
