@@ -87,11 +87,14 @@ interface OdexResult {
   line: string;
   /** S3 only: the hand-written loop of the same method, timed in the same rounds */
   loopMs?: number | undefined;
+  /** S3 only: the same loop driven by the scenario's controller through a timer queue */
+  ctlMs?: number | undefined;
   loopLine?: string | undefined;
 }
 
 /** The hand-written S3 loop (bench/s3-loop.ts), built once so that every measurement runs warm code. */
 const s3Loop = makeS3Loop();
+const s3Controlled = makeS3Loop('controller');
 
 function versusOdex(k: Key, cycles: number): OdexResult {
   const s = SCENARIOS[k];
@@ -117,17 +120,26 @@ function versusOdex(k: Key, cycles: number): OdexResult {
   let tEngine = engineBest();
   // S3: the hand-written loop of the same method (the floor under the engine's generality)
   let loopState: number[] = [];
-  let tLoop = NaN;
-  const loopBest = (): number => {
-    let best = Infinity;
+  let ctlState: number[] = [];
+  let tLoop = NaN, tCtl = NaN;
+  const loopBest = (): [number, number] => {
+    let best = Infinity, bestCtl = Infinity;
     for (let i = 0; i < 10; i++) {
       t0 = performance.now();
       loopState = s3Loop.run(cycles);
       best = Math.min(best, performance.now() - t0);
+      t0 = performance.now();
+      ctlState = s3Controlled.run(cycles);
+      bestCtl = Math.min(bestCtl, performance.now() - t0);
     }
-    return best;
+    return [best, bestCtl];
   };
-  if (k === 'S3') for (let i = 0; i < 40; i++) loopState = s3Loop.run(cycles);
+  if (k === 'S3') {
+    for (let i = 0; i < 40; i++) {
+      loopState = s3Loop.run(cycles);
+      ctlState = s3Controlled.run(cycles);
+    }
+  }
   const xe = Array.from(r.state.slice(0, model.circuit.nx));
   // odex state order: S2 = [LF, CF, L1, C1]; S1/S3 = [L1, C1]. Engine state names give the same order here.
   const names = model.circuit.stateNames;
@@ -148,17 +160,20 @@ function versusOdex(k: Key, cycles: number): OdexResult {
     const y = odexRun(k, cycles, PERIOD_S, DUTY, tol).y;
     const e = relErr(y, tight);
     if (e <= goal || tol === 1e-14) {
-      const rounds: { odex: number; engine: number; loop: number }[] = [];
+      const rounds: { odex: number; engine: number; loop: number; ctl: number }[] = [];
       for (let rep = 0; rep < 3; rep++) {
         t0 = performance.now();
         odexRun(k, cycles, PERIOD_S, DUTY, tol);
         const odexMs = performance.now() - t0;
-        rounds.push({ odex: odexMs, engine: engineBest(), loop: k === 'S3' ? loopBest() : NaN });
+        const engineMs = engineBest();
+        const [loopMs, ctlMs] = k === 'S3' ? loopBest() : [NaN, NaN];
+        rounds.push({ odex: odexMs, engine: engineMs, loop: loopMs, ctl: ctlMs });
       }
       rounds.sort((a, b) => a.odex / a.engine - b.odex / b.engine);
       tOdex = rounds[1]!.odex;
       tEngine = rounds[1]!.engine;
       tLoop = rounds[1]!.loop;
+      tCtl = rounds[1]!.ctl;
       chosen = tol;
       odexErr = e;
       break;
@@ -167,10 +182,11 @@ function versusOdex(k: Key, cycles: number): OdexResult {
     missErr = e;
   }
   const loopLine = k === 'S3'
-    ? `S3 hand-written loop of the same method, nothing general (bench/s3-loop.ts): ${tLoop.toFixed(2)} ms in the same rounds (final-state difference to odex at 1e-14: ${relErr(loopState, tight).toExponential(1)}); odex/loop = ${(tOdex / tLoop).toFixed(0)}x; the engine takes ${(tEngine / tLoop).toFixed(1)} times the loop`
+    ? `S3 hand-written loop of the same method, nothing general (bench/s3-loop.ts): ${tLoop.toFixed(2)} ms in the same rounds (final-state difference to odex at 1e-14: ${relErr(loopState, tight).toExponential(1)}); odex/loop = ${(tOdex / tLoop).toFixed(0)}x; driven by the scenario's controller through a context and timer queue (final state ${relErr(ctlState, loopState) === 0 ? 'identical' : `${relErr(ctlState, loopState).toExponential(1)} away`}), the loop takes ${(tCtl / tLoop).toFixed(2)} times as long; the engine takes ${(tEngine / tLoop).toFixed(1)} times the loop`
     : undefined;
   return {
     loopMs: tLoop,
+    ctlMs: tCtl,
     loopLine,
     engineMs: tEngine,
     odexMs: tOdex,
@@ -256,7 +272,8 @@ function parent(): void {
     console.log(`${at.line.replace(/ratio odex\/engine = .*$/, '')}ratio odex/engine = ${m.toFixed(0)}x ${spread(ratios, (x) => `${x.toFixed(0)}x`)} (target >= 100x)`);
     if (at.loopLine !== undefined) {
       const perLoop = reports.map((r) => r.odex[k].engineMs / r.odex[k].loopMs!);
-      console.log(`${at.loopLine} [${perLoop.map((x) => x.toFixed(1)).join(', ')}]`);
+      const ctlPerLoop = reports.map((r) => r.odex[k].ctlMs! / r.odex[k].loopMs!);
+      console.log(`${at.loopLine} [${perLoop.map((x) => x.toFixed(1)).join(', ')}] (controller-driven loop per process: [${ctlPerLoop.map((x) => x.toFixed(2)).join(', ')}])`);
     }
   }
   console.log(reports[0]!.memory);

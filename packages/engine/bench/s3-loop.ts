@@ -5,16 +5,74 @@
 // zero, then the inductor held at zero) is known in advance. It measures how far below the
 // engine the method itself goes on this machine, so that the engine's cost can be read as
 // method plus generality. A benchmark reference only, not part of the library.
+//
+// Driven by 'controller', the same loop takes its switching instants from the scenario's own
+// controller (openLoop, the one the engine runs) through a minimal context and timer queue, and
+// checks that they are the fixed ones: the least any implementation that keeps the controller
+// interface pays on top of the method.
+import type { ControlContext } from '../src/index.ts';
 import { CircuitModel } from '../src/index.ts';
 import { taylorOrder } from '../src/simulator.ts';
-import { DUTY, PERIOD_S, SCENARIOS } from './scenarios.ts';
+import { DUTY, PERIOD_S, SCENARIOS, openLoop } from './scenarios.ts';
 
 export interface S3Loop {
   /** Runs `cycles` cycles from the circuit's initial state; returns the final [L1 current, C1 charge] (one array, overwritten by the next run). */
   run(cycles: number): [number, number];
 }
 
-export function makeS3Loop(): S3Loop {
+/** The part of the controller context that openLoop uses, over a queue of (cycle, offset, tag)
+ * records kept with the earliest last. */
+class MiniContext {
+  key = 0;
+  cyc = 0;
+  len = 0;
+  readonly q = new Float64Array(3 * 8);
+  constructor(private readonly gates: readonly string[], private readonly masks: Int32Array) {}
+  get cycle(): number {
+    return this.cyc;
+  }
+  gate(name: string): number {
+    return this.gates.indexOf(name);
+  }
+  setGate(g: number, on: boolean): void {
+    this.key = on ? this.key | this.masks[g]! : this.key & ~this.masks[g]!;
+  }
+  at(tag: number, cycle: number, offsetS: number): void {
+    const q = this.q;
+    let n = this.len;
+    for (let i = 0; i < n; i++) {
+      if (q[3 * i + 2] !== tag) continue;
+      q.copyWithin(3 * i, 3 * i + 3, 3 * n);
+      n--;
+      break;
+    }
+    let i = n;
+    while (i > 0 && (q[3 * i - 3]! < cycle || (q[3 * i - 3] === cycle && q[3 * i - 2]! < offsetS))) {
+      q[3 * i] = q[3 * i - 3]!;
+      q[3 * i + 1] = q[3 * i - 2]!;
+      q[3 * i + 2] = q[3 * i - 1]!;
+      i--;
+    }
+    q[3 * i] = cycle;
+    q[3 * i + 1] = offsetS;
+    q[3 * i + 2] = tag;
+    this.len = n + 1;
+  }
+  /** Hands the controller every timer due at (cycle, offsetS); throws unless the next one is at
+   * (nextCycle, nextOffsetS) and the gates give `key`. */
+  due(ctrl: ReturnType<typeof openLoop>, cycle: number, offsetS: number, key: number, nextCycle: number, nextOffsetS: number): void {
+    this.cyc = cycle;
+    const q = this.q;
+    while (this.len > 0 && q[3 * this.len - 3] === cycle && q[3 * this.len - 2] === offsetS) {
+      this.len--;
+      ctrl.onEvent(this as unknown as ControlContext, q[3 * this.len + 2]!);
+    }
+    const i = 3 * this.len - 3;
+    if (this.key !== key || q[i] !== nextCycle || q[i + 1] !== nextOffsetS) throw new Error('S3 loop: the controller did not switch at the fixed instants');
+  }
+}
+
+export function makeS3Loop(driver: 'fixed' | 'controller' = 'fixed'): S3Loop {
   const model = new CircuitModel(SCENARIOS.S3.circuit);
   const c = model.circuit;
   const ids = c.devices.map((d) => d.id);
@@ -33,17 +91,30 @@ export function makeS3Loop(): S3Loop {
   // the result goes in one array made here: an array literal at the return of a loop the
   // optimiser compiled on the stack (before any run returned) has no feedback and deoptimises
   const result: [number, number] = [0, 0];
+  const controlled = driver === 'controller';
+  const masks = new Int32Array(c.gates.length);
+  c.devices.forEach((d, i) => {
+    if (d.gate >= 0) masks[d.gate]! |= 1 << i;
+  });
+  const ctx = new MiniContext(c.gates, masks);
   return {
     run(cycles: number): [number, number] {
+      const ctrl = openLoop(false);
+      if (controlled) {
+        ctx.key = ctx.len = ctx.cyc = 0;
+        ctrl.start(ctx as unknown as ControlContext);
+      }
       let x0 = w0[0]!, x1 = w0[1]!;
       const u0 = w0[2]!, u1 = w0[3]!;
       const a00 = mo[0]!, a01 = mo[1]!, a10 = mo[4]!, a11 = mo[5]!, b0 = mo[2]! * u0 + mo[3]! * u1, b1 = mo[6]! * u0 + mo[7]! * u1;
       const r0 = row[0]!, r1 = row[1]!, rc = row[2]! * u0 + row[3]! * u1;
       const dcm01 = md[1]!, dcm11 = md[5]!, dcmB0 = md[2]! * u0 + md[3]! * u1, dcmB1 = md[6]! * u0 + md[7]! * u1;
       for (let k = 0; k < cycles; k++) {
+        if (controlled) ctx.due(ctrl, k, 0, 1 << hs, k, tOn);
         // on
         let y0 = Eon[0]! * x0 + Eon[1]! * x1 + Eon[2]! * u0 + Eon[3]! * u1;
         let y1 = Eon[4]! * x0 + Eon[5]! * x1 + Eon[6]! * u0 + Eon[7]! * u1;
+        if (controlled) ctx.due(ctrl, k, tOn, 0, k + 1, 0);
         // off, to the period's end: does the diode current reach zero?
         const e0 = Eoff[0]! * y0 + Eoff[1]! * y1 + Eoff[2]! * u0 + Eoff[3]! * u1;
         const e1 = Eoff[4]! * y0 + Eoff[5]! * y1 + Eoff[6]! * u0 + Eoff[7]! * u1;
