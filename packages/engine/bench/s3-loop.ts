@@ -97,9 +97,9 @@ export function makeS3Loop(driver: 'fixed' | 'controller' = 'fixed'): S3Loop {
     if (d.gate >= 0) masks[d.gate]! |= 1 << i;
   });
   const ctx = new MiniContext(c.gates, masks);
+  const ctrl = openLoop(false); // its start() sets it up afresh for every run
   return {
     run(cycles: number): [number, number] {
-      const ctrl = openLoop(false);
       if (controlled) {
         ctx.key = ctx.len = ctx.cyc = 0;
         ctrl.start(ctx as unknown as ControlContext);
